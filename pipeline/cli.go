@@ -1,0 +1,518 @@
+package pipeline
+
+import (
+	"errors"
+	"flag"
+	"fmt"
+	"io"
+	"os"
+	"path/filepath"
+	"runtime"
+	"sort"
+	"strconv"
+	"strings"
+	"text/tabwriter"
+	"time"
+
+	"strata/cache"
+	"strata/stages"
+)
+
+// Exit codes.
+const (
+	ExitOK    = 0
+	ExitFail  = 1
+	ExitUsage = 2
+)
+
+type env struct {
+	stdout, stderr io.Writer
+}
+
+const mainUsage = `strata: density-of-states studies of the Ising model at imaginary field
+
+Usage:
+  strata <command> [flags] [arguments]
+
+Commands:
+  run     STUDY.toml   run what is stale, reuse what is cached, write the outputs
+  plan    STUDY.toml   show which nodes would run and which parameter made each stale
+  show    STUDY.toml   print the headline results of a finished run
+  exact                print exact references for one lattice
+  cache   verify|ls|gc manage the cache
+
+Run 'strata <command> --help' for the flags of a command.
+`
+
+// Main runs the command line and returns the exit code.
+func Main(args []string, stdout, stderr io.Writer) int {
+	e := &env{stdout: stdout, stderr: stderr}
+	if len(args) == 0 {
+		fmt.Fprint(stderr, mainUsage)
+		return ExitUsage
+	}
+	switch args[0] {
+	case "-h", "--help", "help":
+		fmt.Fprint(stdout, mainUsage)
+		return ExitOK
+	case "run":
+		return e.studyCommand("run", args[1:])
+	case "plan":
+		return e.studyCommand("plan", args[1:])
+	case "show":
+		return e.studyCommand("show", args[1:])
+	case "exact":
+		return e.exactCommand(args[1:])
+	case "cache":
+		return e.cacheCommand(args[1:])
+	}
+	fmt.Fprintf(stderr, "strata: unknown command %q\n\n%s", args[0], mainUsage)
+	return ExitUsage
+}
+
+// multi is a repeatable string flag.
+type multi []string
+
+func (m *multi) String() string     { return strings.Join(*m, " ") }
+func (m *multi) Set(s string) error { *m = append(*m, s); return nil }
+
+// parseInterleaved parses flags that may stand before or after positional
+// arguments (the flag package stops at the first positional one).
+func parseInterleaved(fs *flag.FlagSet, args []string) ([]string, error) {
+	var pos []string
+	for {
+		if err := fs.Parse(args); err != nil {
+			return nil, err
+		}
+		rest := fs.Args()
+		if len(rest) == 0 {
+			return pos, nil
+		}
+		pos = append(pos, rest[0])
+		args = rest[1:]
+	}
+}
+
+type studyFlags struct {
+	cacheDir, outDir string
+	sets             multi
+	jobs             int
+	stages           string
+	explain          bool
+	shard            string
+}
+
+func (e *env) newFlagSet(name, usage string) *flag.FlagSet {
+	fs := flag.NewFlagSet(name, flag.ContinueOnError)
+	fs.SetOutput(e.stderr)
+	fs.Usage = func() {
+		fmt.Fprint(fs.Output(), usage)
+		fs.PrintDefaults()
+	}
+	return fs
+}
+
+var studyUsages = map[string]string{
+	"run":  "Usage: strata run STUDY.toml [flags]\n\nRuns every stale node of the study (reusing cached ones) and writes the output folder.\n\nFlags:\n",
+	"plan": "Usage: strata plan STUDY.toml [flags]\n\nDry run: lists the nodes a run would compute and, for each, which parameter made it stale.\n\nFlags:\n",
+	"show": "Usage: strata show STUDY.toml [flags]\n\nPrints the headline results (first zeros, reach, scaling) from the cache.\n\nFlags:\n",
+}
+
+func (e *env) studyCommand(cmd string, args []string) int {
+	fs := e.newFlagSet(cmd, studyUsages[cmd])
+	var f studyFlags
+	fs.StringVar(&f.cacheDir, "cache", "", "cache directory (default .strata-cache beside the study, or $STRATA_CACHE)")
+	fs.StringVar(&f.outDir, "out", "", "output directory (default out/<name>)")
+	fs.Var(&f.sets, "set", "override a study key: dotted.key=value in TOML syntax (repeatable)")
+	fs.IntVar(&f.jobs, "jobs", runtime.NumCPU(), "number of concurrent workers")
+	if cmd == "run" || cmd == "plan" {
+		fs.StringVar(&f.stages, "stages", "", "comma-separated stages to run, with what they need (sample,ratios,stitch,exact,transform,scaling)")
+		fs.StringVar(&f.shard, "shard", "", "i/K: run only the sample shards assigned to task i of K (with --stages sample)")
+	}
+	if cmd == "plan" {
+		fs.BoolVar(&f.explain, "explain", false, "print the full record behind each node's key")
+	}
+	pos, err := parseInterleaved(fs, args)
+	if errors.Is(err, flag.ErrHelp) {
+		fs.SetOutput(e.stdout)
+		fs.Usage()
+		return ExitOK
+	}
+	if err != nil {
+		return ExitUsage
+	}
+	if len(pos) != 1 {
+		fmt.Fprintf(e.stderr, "strata %s: want exactly one study file, got %d arguments\n", cmd, len(pos))
+		return ExitUsage
+	}
+	path := pos[0]
+	st, err := LoadStudy(path, f.sets)
+	if err != nil {
+		fmt.Fprintln(e.stderr, err)
+		return ExitUsage
+	}
+	if f.cacheDir == "" {
+		f.cacheDir = DefaultCacheDir(path)
+	}
+	if f.outDir == "" {
+		f.outDir = DefaultOutDir(st)
+	}
+	c, err := cache.Open(f.cacheDir)
+	if err != nil {
+		fmt.Fprintln(e.stderr, err)
+		return ExitFail
+	}
+	plan := BuildPlan(st)
+	runner := &Runner{Cache: c, Jobs: f.jobs, Log: e.stderr, Live: isTerminal(e.stderr)}
+	if f.stages != "" {
+		runner.Only = map[string]bool{}
+		valid := map[string]bool{stages.SampleStage: true, stages.RatiosStage: true, stages.StitchStage: true,
+			stages.ExactStage: true, stages.TransformStage: true, stages.ScalingStage: true}
+		for _, s := range strings.Split(f.stages, ",") {
+			s = strings.TrimSpace(s)
+			if !valid[s] {
+				fmt.Fprintf(e.stderr, "strata %s: --stages: unknown stage %q\n", cmd, s)
+				return ExitUsage
+			}
+			runner.Only[s] = true
+		}
+	}
+	if f.shard != "" {
+		i, k, err := parseShard(f.shard)
+		if err != nil {
+			fmt.Fprintf(e.stderr, "strata %s: --shard: %v\n", cmd, err)
+			return ExitUsage
+		}
+		runner.ShardI, runner.ShardK = i, k
+	}
+	switch cmd {
+	case "plan":
+		return e.plan(plan, runner, f)
+	case "show":
+		return e.show(plan, c)
+	}
+	start := time.Now()
+	runErr := runner.Run(plan)
+	ran := runner.Select(plan)
+	if f.shard != "" {
+		// array tasks write only to the cache
+		if runErr != nil {
+			fmt.Fprintf(e.stderr, "strata run: failed:\n%v\n", runErr)
+			return ExitFail
+		}
+		return ExitOK
+	}
+	if _, err := Materialize(c, plan, ran, f.outDir); err != nil {
+		fmt.Fprintf(e.stderr, "strata run: writing outputs: %v\n", err)
+		return ExitFail
+	}
+	if runErr != nil {
+		fmt.Fprintf(e.stderr, "strata run: failed:\n%v\n", runErr)
+		return ExitFail
+	}
+	fmt.Fprintf(e.stderr, "done in %.1fs; outputs in %s\n", time.Since(start).Seconds(), f.outDir)
+	return ExitOK
+}
+
+func parseShard(s string) (int, int, error) {
+	a, b, ok := strings.Cut(s, "/")
+	i, err1 := strconv.Atoi(a)
+	k, err2 := strconv.Atoi(b)
+	if !ok || err1 != nil || err2 != nil || k < 1 || i < 0 || i >= k {
+		return 0, 0, fmt.Errorf("%q: want i/K with 0 ≤ i < K", s)
+	}
+	return i, k, nil
+}
+
+func isTerminal(w io.Writer) bool {
+	f, ok := w.(*os.File)
+	if !ok {
+		return false
+	}
+	st, err := f.Stat()
+	return err == nil && st.Mode()&os.ModeCharDevice != 0
+}
+
+// plan prints which selected nodes are stale and why, by comparing each
+// node's record with the one stored in the previous manifest.
+func (e *env) plan(p *Plan, r *Runner, f studyFlags) int {
+	prev := map[string]string{}
+	if b, err := os.ReadFile(filepath.Join(f.outDir, "manifest.json")); err == nil {
+		var m Manifest
+		if jsonUnmarshal(b, &m) == nil {
+			for _, n := range m.Nodes {
+				prev[n.Stage+"|"+n.Branch+"|"+n.Label] = n.Record
+			}
+		}
+	}
+	stale := 0
+	nodes := r.Select(p)
+	for _, n := range nodes {
+		_, err := r.Cache.Get(n.Key)
+		state := "cached"
+		if err != nil {
+			state = "run"
+			stale++
+		}
+		fmt.Fprintf(e.stdout, "%-6s %s  %s\n", state, n.Key.Short(), n.Name())
+		if state == "run" {
+			if old, ok := prev[n.Task.Stage+"|"+n.Branch+"|"+n.Label]; ok {
+				for _, why := range recordDiff(old, n.Record) {
+					fmt.Fprintf(e.stdout, "         %s\n", why)
+				}
+			} else if errors.Is(err, cache.ErrCorrupt) {
+				fmt.Fprintf(e.stdout, "         cached object is corrupt\n")
+			} else {
+				fmt.Fprintf(e.stdout, "         not in the cache\n")
+			}
+		}
+		if f.explain {
+			for _, line := range strings.Split(strings.TrimSpace(n.Record), "\n") {
+				fmt.Fprintf(e.stdout, "         | %s\n", line)
+			}
+		}
+	}
+	fmt.Fprintf(e.stdout, "%d of %d nodes would run\n", stale, len(nodes))
+	return ExitOK
+}
+
+// recordDiff explains the difference between two records: changed
+// parameters by name, a changed version, or changed inputs.
+func recordDiff(old, cur string) []string {
+	parse := func(s string) (map[string]string, int) {
+		m := map[string]string{}
+		inputs := 0
+		for _, line := range strings.Split(s, "\n") {
+			f := strings.SplitN(line, " ", 3)
+			switch {
+			case len(f) == 3 && f[0] == "param":
+				m["param "+f[1]] = f[2]
+			case len(f) >= 2 && f[0] == "version":
+				m["version"] = f[1]
+			case len(f) >= 2 && f[0] == "input":
+				m[fmt.Sprintf("input %d", inputs)] = f[1]
+				inputs++
+			}
+		}
+		return m, inputs
+	}
+	a, na := parse(old)
+	b, nb := parse(cur)
+	var out []string
+	inputsChanged := na != nb
+	keys := map[string]bool{}
+	for k := range a {
+		keys[k] = true
+	}
+	for k := range b {
+		keys[k] = true
+	}
+	var sorted []string
+	for k := range keys {
+		sorted = append(sorted, k)
+	}
+	sort.Strings(sorted)
+	for _, k := range sorted {
+		if a[k] == b[k] {
+			continue
+		}
+		if strings.HasPrefix(k, "input") {
+			inputsChanged = true
+			continue
+		}
+		out = append(out, fmt.Sprintf("%s: %s → %s", k, orNone(a[k]), orNone(b[k])))
+	}
+	if inputsChanged {
+		out = append(out, "inputs changed (an upstream node is stale)")
+	}
+	if len(out) == 0 {
+		out = append(out, "same record as the last run, but not in this cache")
+	}
+	return out
+}
+
+func orNone(s string) string {
+	if s == "" {
+		return "(none)"
+	}
+	return s
+}
+
+func (e *env) show(p *Plan, c *cache.Cache) int {
+	res := LoadResults(c, p)
+	s := res.BuildSummary()
+	tw := tabwriter.NewWriter(e.stdout, 2, 4, 2, ' ', 0)
+	fmt.Fprintln(tw, "branch\tL\tbeta\tfirst zero\texact\treach")
+	missing := 0
+	for _, b := range s.Branches {
+		fz := "—"
+		if b.FirstZero != nil {
+			fz = fmt.Sprintf("%.6g ± %.2g", b.FirstZero.Value, b.FirstZero.Error)
+		}
+		ex := "—"
+		if b.ExactFirstZero != nil {
+			ex = fmt.Sprintf("%.6g", *b.ExactFirstZero)
+		}
+		reach := "not run"
+		if b.Reach != nil {
+			reach = fmt.Sprintf("%.4g", *b.Reach)
+			if b.ReachIsLowerBound {
+				reach = "≥ " + reach
+			}
+		} else {
+			missing++
+		}
+		fmt.Fprintf(tw, "%s\t%d\t%s\t%s\t%s\t%s\n", b.Dir, b.Size, stages.F(b.Beta), fz, ex, reach)
+	}
+	tw.Flush()
+	for _, sc := range s.Scaling {
+		if sc.ThetaC == nil {
+			fmt.Fprintf(e.stdout, "scaling beta=%s: %s\n", stages.F(sc.Beta), sc.Note)
+			continue
+		}
+		fmt.Fprintf(e.stdout, "scaling beta=%s: theta_c = %.6g ± %.2g, y = %.4g ± %.2g, sizes %v",
+			stages.F(sc.Beta), sc.ThetaC.Value, sc.ThetaC.Error, sc.Exponent.Value, sc.Exponent.Error, sc.Sizes)
+		if sc.ExactThetaC != nil {
+			fmt.Fprintf(e.stdout, " (exact theta_c %.6g)", *sc.ExactThetaC)
+		}
+		fmt.Fprintln(e.stdout)
+	}
+	if missing > 0 {
+		fmt.Fprintf(e.stderr, "%d branches have no results yet; run 'strata run' first\n", missing)
+	}
+	return ExitOK
+}
+
+const cacheUsage = `Usage:
+  strata cache verify [--cache DIR]            re-hash every object; exit 1 if any is damaged
+  strata cache ls [--cache DIR]                list objects with sizes and ages
+  strata cache gc STUDY.toml... [--cache DIR] [--older-than 30d]
+                                               keep what the studies reach, remove the rest
+`
+
+func (e *env) cacheCommand(args []string) int {
+	if len(args) == 0 {
+		fmt.Fprint(e.stderr, cacheUsage)
+		return ExitUsage
+	}
+	sub := args[0]
+	if sub == "-h" || sub == "--help" {
+		fmt.Fprint(e.stdout, cacheUsage)
+		return ExitOK
+	}
+	fs := e.newFlagSet("cache "+sub, cacheUsage+"\nFlags:\n")
+	dir := fs.String("cache", "", "cache directory (default .strata-cache, or beside the first study, or $STRATA_CACHE)")
+	older := fs.String("older-than", "0s", "gc: remove unreached objects only if unused for this long (e.g. 30d, 12h)")
+	var sets multi
+	fs.Var(&sets, "set", "gc: override a study key when resolving the studies (repeatable)")
+	pos, err := parseInterleaved(fs, args[1:])
+	if errors.Is(err, flag.ErrHelp) {
+		fs.SetOutput(e.stdout)
+		fs.Usage()
+		return ExitOK
+	}
+	if err != nil {
+		return ExitUsage
+	}
+	if *dir == "" {
+		if len(pos) > 0 {
+			*dir = DefaultCacheDir(pos[0])
+		} else if d := os.Getenv("STRATA_CACHE"); d != "" {
+			*dir = d
+		} else {
+			*dir = ".strata-cache"
+		}
+	}
+	c, err := cache.Open(*dir)
+	if err != nil {
+		fmt.Fprintln(e.stderr, err)
+		return ExitFail
+	}
+	switch sub {
+	case "verify", "ls":
+		es, err := c.List(sub == "verify")
+		if err != nil {
+			fmt.Fprintln(e.stderr, err)
+			return ExitFail
+		}
+		bad := 0
+		var total int64
+		now := time.Now()
+		for _, en := range es {
+			total += en.Size
+			if sub == "ls" {
+				fmt.Fprintf(e.stdout, "%s  %10d  %s\n", en.Action, en.Size, fmtAge(now.Sub(en.LastUse)))
+			} else if en.Err != nil {
+				bad++
+				fmt.Fprintf(e.stdout, "DAMAGED %s: %v\n", en.Action, en.Err)
+			}
+		}
+		fmt.Fprintf(e.stdout, "%d objects, %d bytes", len(es), total)
+		if sub == "verify" {
+			fmt.Fprintf(e.stdout, ", %d damaged", bad)
+		}
+		fmt.Fprintln(e.stdout)
+		if bad > 0 {
+			return ExitFail
+		}
+		return ExitOK
+	case "gc":
+		if len(pos) == 0 {
+			fmt.Fprintln(e.stderr, "strata cache gc: name the studies whose objects to keep")
+			return ExitUsage
+		}
+		age, err := parseAge(*older)
+		if err != nil {
+			fmt.Fprintf(e.stderr, "strata cache gc: --older-than: %v\n", err)
+			return ExitUsage
+		}
+		keep := map[cache.Key]bool{}
+		for _, path := range pos {
+			st, err := LoadStudy(path, sets)
+			if err != nil {
+				fmt.Fprintln(e.stderr, err)
+				return ExitUsage
+			}
+			for _, n := range BuildPlan(st).Nodes {
+				keep[n.Key] = true
+			}
+		}
+		stats, err := c.GC(keep, age)
+		if err != nil {
+			fmt.Fprintln(e.stderr, err)
+			return ExitFail
+		}
+		fmt.Fprintf(e.stdout, "removed %d entries and %d objects (%d bytes)\n", stats.Actions, stats.Outputs, stats.Bytes)
+		return ExitOK
+	}
+	fmt.Fprintf(e.stderr, "strata cache: unknown subcommand %q\n\n%s", sub, cacheUsage)
+	return ExitUsage
+}
+
+func fmtAge(d time.Duration) string {
+	switch {
+	case d < time.Minute:
+		return fmt.Sprintf("%ds", int(d.Seconds()))
+	case d < time.Hour:
+		return fmt.Sprintf("%dm", int(d.Minutes()))
+	case d < 48*time.Hour:
+		return fmt.Sprintf("%dh", int(d.Hours()))
+	}
+	return fmt.Sprintf("%dd", int(d.Hours()/24))
+}
+
+// parseAge accepts Go durations and a day suffix (30d).
+func parseAge(s string) (time.Duration, error) {
+	if strings.HasSuffix(s, "d") {
+		n, err := strconv.ParseFloat(strings.TrimSuffix(s, "d"), 64)
+		if err != nil || n < 0 {
+			return 0, fmt.Errorf("%q is not a duration", s)
+		}
+		return time.Duration(n * 24 * float64(time.Hour)), nil
+	}
+	d, err := time.ParseDuration(s)
+	if err != nil || d < 0 {
+		return 0, fmt.Errorf("%q is not a duration", s)
+	}
+	return d, nil
+}

@@ -1,0 +1,22 @@
+package pipeline
+
+import "fmt"
+
+// Quantities an expectation may name.
+var expectQuantities = map[string]bool{"first_zero": true, "reach": true, "sign": true, "im_m": true,
+	"ln_rho": true, "theta_c": true, "exponent": true}
+
+func (st *Study) validateExpect(p *Problems) {
+	for i, e := range st.Expect {
+		key := fmt.Sprintf("expect[%d]", i)
+		if !expectQuantities[e.Quantity] {
+			p.add(key+".quantity", "%q is not one of first_zero, reach, sign, im_m, ln_rho, theta_c, exponent", e.Quantity)
+		}
+		if (e.Value == nil) == !e.Exact {
+			p.add(key, "give exactly one of value or exact = true")
+		}
+		if e.Sigma < 0 || e.Tolerance < 0 || (e.Sigma == 0 && e.Tolerance == 0) {
+			p.add(key, "give sigma > 0 or tolerance > 0")
+		}
+	}
+}

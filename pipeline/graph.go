@@ -1,0 +1,213 @@
+package pipeline
+
+import (
+	"encoding/binary"
+	"fmt"
+	"math"
+	"sort"
+	"strings"
+
+	"strata/cache"
+	"strata/stages"
+	"strata/stages/ratio"
+)
+
+// CacheFormat salts every key; bump it when the record layout or the
+// encoding of stored objects changes.
+const CacheFormat = "strata-cache v1"
+
+// Node is one cached computation in a study's graph.
+type Node struct {
+	Task   stages.Task
+	Branch string // branch folder (L16_beta1), or beta<β> for joins
+	Label  string // identity within the branch, e.g. "M=12 chunk=3"
+	Inputs []*Node
+	Key    cache.Key
+	Record string // the text hashed into Key
+
+	level int
+	// cost estimates sample work (sweeps × N) for shard balancing
+	cost float64
+	// filled by a run
+	Status  string
+	Seconds float64
+	Err     error
+}
+
+// Name is the node's display name.
+func (n *Node) Name() string {
+	s := n.Task.Stage + " " + n.Branch
+	if n.Label != "" {
+		s += " " + n.Label
+	}
+	return s
+}
+
+// record builds the text record behind a node's key: one line per
+// influence. Anything new that can change a stage's output must appear
+// here (through the task's params or version).
+func (n *Node) record() string {
+	var b strings.Builder
+	fmt.Fprintf(&b, "%s\nstage %s\nversion %d\n", CacheFormat, n.Task.Stage, n.Task.Version)
+	ps := append([]stages.Param(nil), n.Task.Params...)
+	sort.Slice(ps, func(i, j int) bool { return ps[i].Name < ps[j].Name })
+	for _, p := range ps {
+		fmt.Fprintf(&b, "param %s %s\n", p.Name, p.Value)
+	}
+	for _, in := range n.Inputs {
+		fmt.Fprintf(&b, "input %s\n", in.Key)
+	}
+	return b.String()
+}
+
+func newNode(t stages.Task, branch, label string, inputs ...*Node) *Node {
+	n := &Node{Task: t, Branch: branch, Label: label, Inputs: inputs}
+	for _, in := range inputs {
+		if in.level+1 > n.level {
+			n.level = in.level + 1
+		}
+	}
+	n.Record = n.record()
+	n.Key = cache.Sum([]byte(n.Record))
+	return n
+}
+
+// BranchNodes are the nodes of one (L, β).
+type BranchNodes struct {
+	Branch    Branch
+	N         int
+	Samples   []*Node
+	Shards    []stages.Shard
+	Ratios    *Node
+	Stitch    *Node
+	Exact     *Node // nil when no exact reference exists
+	Transform *Node
+}
+
+// Plan is a study's full graph in dependency order.
+type Plan struct {
+	Study    *Study
+	Branches []*BranchNodes
+	Scaling  []*ScalingNode
+	Nodes    []*Node
+}
+
+// ScalingNode joins the branches of one β.
+type ScalingNode struct {
+	Beta  float64
+	Sizes []int
+	Node  *Node
+}
+
+// shardSeed derives a shard's generator seed by hashing its identity.
+func shardSeed(st *Study, b Branch, m, chunk int) uint64 {
+	rec := fmt.Sprintf("shard-seed\n%d\n%d\n%d\n%s\n%s\n%d\n%d\n", st.Sample.Seed, st.Model.Dimension, b.L,
+		stages.F(b.Beta), st.Sample.Estimator, m, chunk)
+	k := cache.Sum([]byte(rec))
+	return binary.LittleEndian.Uint64(k[:8])
+}
+
+func replicaSeed(st *Study, b Branch) uint64 {
+	rec := fmt.Sprintf("replica-seed\n%d\n%d\n%d\n%s\n", st.Sample.Seed, st.Model.Dimension, b.L, stages.F(b.Beta))
+	k := cache.Sum([]byte(rec))
+	return binary.LittleEndian.Uint64(k[:8])
+}
+
+// BuildPlan builds the graph of a study.
+func BuildPlan(st *Study) *Plan {
+	p := &Plan{Study: st}
+	d := st.Model.Dimension
+	tp := stages.TransformParams{ThetaMin: st.Transform.ThetaMin, ThetaMax: st.Transform.ThetaMax,
+		Points: st.Transform.ThetaPoints, ReachFactor: st.Transform.ReachFactor,
+		ZeroFraction: st.Transform.ZeroFraction, MaxBits: st.Exact.MaxBits}
+	byBeta := map[float64][]*BranchNodes{}
+	for _, b := range st.Branches() {
+		n := int(math.Round(math.Pow(float64(b.L), float64(d))))
+		bn := &BranchNodes{Branch: b, N: n}
+		dir := b.Dir()
+		for _, m := range ratio.Sectors(st.Sample.Estimator, n) {
+			for c := 0; c < st.Chunks(); c++ {
+				sp := stages.SampleParams{D: d, L: b.L, Beta: b.Beta, Estimator: st.Sample.Estimator,
+					M: m, Chunk: c, Sweeps: st.Sample.ChunkSweeps, Therm: st.Sample.Thermalization,
+					Seed: shardSeed(st, b, m, c)}
+				node := newNode(stages.Sample(sp), dir, fmt.Sprintf("M=%d chunk=%d", m, c))
+				node.cost = float64(st.Sample.ChunkSweeps+st.Sample.Thermalization) * float64(n)
+				bn.Samples = append(bn.Samples, node)
+				bn.Shards = append(bn.Shards, stages.Shard{M: m, Chunk: c})
+			}
+		}
+		bn.Ratios = newNode(stages.Ratios(stages.RatiosParams{D: d, L: b.L, Beta: b.Beta,
+			Estimator: st.Sample.Estimator, MinTauRatio: st.Ratios.MinTauRatio,
+			WarnTauRatio: st.Ratios.WarnTauRatio, Shards: bn.Shards}), dir, "", bn.Samples...)
+		bn.Stitch = newNode(stages.Stitch(st.Stitch.Replicas, replicaSeed(st, b)), dir, "", bn.Ratios)
+		tin := []*Node{bn.Stitch}
+		if st.Exact.Enabled && stages.ExactAvailable(d, b.L) {
+			bn.Exact = newNode(stages.Exact(d, b.L, b.Beta), dir, "")
+			tin = append(tin, bn.Exact)
+		}
+		bn.Transform = newNode(stages.Transform(tp), dir, "", tin...)
+		p.Branches = append(p.Branches, bn)
+		byBeta[b.Beta] = append(byBeta[b.Beta], bn)
+		p.Nodes = append(p.Nodes, bn.Samples...)
+		if bn.Exact != nil {
+			p.Nodes = append(p.Nodes, bn.Exact)
+		}
+		p.Nodes = append(p.Nodes, bn.Ratios, bn.Stitch, bn.Transform)
+	}
+	p.addScaling(st, byBeta)
+	sort.SliceStable(p.Nodes, func(i, j int) bool { return p.Nodes[i].level < p.Nodes[j].level })
+	return p
+}
+
+// ShardOf assigns sample nodes to K tasks, balanced by cost with the
+// longest-processing-time-first rule; ties keep plan order, so the
+// assignment is deterministic. It returns the task index of each node.
+func ShardOf(nodes []*Node, k int) map[*Node]int {
+	idx := make([]int, len(nodes))
+	for i := range idx {
+		idx[i] = i
+	}
+	sort.SliceStable(idx, func(a, b int) bool { return nodes[idx[a]].cost > nodes[idx[b]].cost })
+	load := make([]float64, k)
+	out := map[*Node]int{}
+	for _, i := range idx {
+		best := 0
+		for t := 1; t < k; t++ {
+			if load[t] < load[best] {
+				best = t
+			}
+		}
+		load[best] += nodes[i].cost
+		out[nodes[i]] = best
+	}
+	return out
+}
+
+func (p *Plan) addScaling(st *Study, byBeta map[float64][]*BranchNodes) {
+	exp := math.NaN()
+	if x, ok := st.Scaling.Exponent.(float64); ok {
+		exp = x
+	}
+	var betas []float64
+	for b := range byBeta {
+		betas = append(betas, b)
+	}
+	sort.Float64s(betas)
+	for _, beta := range betas {
+		bns := byBeta[beta]
+		sn := &ScalingNode{Beta: beta}
+		var ins []*Node
+		for _, bn := range bns {
+			sn.Sizes = append(sn.Sizes, bn.Branch.L)
+			ins = append(ins, bn.Transform)
+		}
+		rec := fmt.Sprintf("scaling-seed\n%d\n%s\n", st.Sample.Seed, stages.F(beta))
+		k := cache.Sum([]byte(rec))
+		sn.Node = newNode(stages.Scaling(stages.ScalingParams{Dimension: st.Model.Dimension, Beta: beta,
+			Sizes: sn.Sizes, Exponent: exp, Correction: st.Scaling.Correction, MinSize: st.Scaling.MinSize,
+			Replicas: st.Stitch.Replicas, Seed: binary.LittleEndian.Uint64(k[:8])}),
+			"beta"+stages.F(beta), "", ins...)
+		p.Scaling = append(p.Scaling, sn)
+		p.Nodes = append(p.Nodes, sn.Node)
+	}
+}

@@ -1,0 +1,359 @@
+package pipeline
+
+import (
+	"bytes"
+	"encoding/json"
+	"fmt"
+	"math"
+	"os"
+	"path/filepath"
+	"strings"
+
+	"strata/cache"
+	"strata/stages"
+)
+
+// ToolVersion is written into manifests.
+const ToolVersion = "0.1.0"
+
+// ManifestNode is one node in manifest.json.
+type ManifestNode struct {
+	Stage   string      `json:"stage"`
+	Branch  string      `json:"branch"`
+	Label   string      `json:"label,omitempty"`
+	Key     cache.Key   `json:"key"`
+	Status  string      `json:"status"`
+	Seconds float64     `json:"seconds"`
+	Inputs  []cache.Key `json:"inputs"`
+	Record  string      `json:"record"`
+}
+
+// Manifest is manifest.json: provenance of a run.
+type Manifest struct {
+	Tool      string         `json:"tool"`
+	Version   string         `json:"version"`
+	StudyHash cache.Key      `json:"study_hash"`
+	Nodes     []ManifestNode `json:"nodes"`
+}
+
+// BranchSummary is one branch in summary.json.
+type BranchSummary struct {
+	Size              int            `json:"size"`
+	Beta              float64        `json:"beta"`
+	Dir               string         `json:"dir"`
+	FirstZero         *stages.ValErr `json:"first_zero"`
+	Reach             *float64       `json:"reach"`
+	ReachIsLowerBound bool           `json:"reach_is_lower_bound"`
+	ExactFirstZero    *float64       `json:"exact_first_zero"`
+	Warnings          []string       `json:"warnings,omitempty"`
+}
+
+// Summary is summary.json: the headline results.
+type Summary struct {
+	Name      string              `json:"name"`
+	Dimension int                 `json:"dimension"`
+	Branches  []BranchSummary     `json:"branches"`
+	Scaling   []stages.ScalingOut `json:"scaling"`
+}
+
+func ptr(x float64) *float64 {
+	if math.IsNaN(x) || math.IsInf(x, 0) {
+		return nil
+	}
+	return &x
+}
+
+// writeFileAtomic writes via a temp file and rename in the same folder.
+func writeFileAtomic(path string, data []byte) error {
+	dir := filepath.Dir(path)
+	if err := os.MkdirAll(dir, 0o777); err != nil {
+		return err
+	}
+	f, err := os.CreateTemp(dir, ".tmp-"+filepath.Base(path)+"-*")
+	if err != nil {
+		return err
+	}
+	_, werr := f.Write(data)
+	if werr == nil {
+		werr = f.Sync()
+	}
+	if cerr := f.Close(); werr == nil {
+		werr = cerr
+	}
+	if werr == nil {
+		werr = os.Rename(f.Name(), path)
+	}
+	if werr != nil {
+		os.Remove(f.Name())
+	}
+	return werr
+}
+
+func writeJSON(path string, v any) error {
+	b, err := json.MarshalIndent(v, "", "  ")
+	if err != nil {
+		return err
+	}
+	return writeFileAtomic(path, append(b, '\n'))
+}
+
+// Results holds the decoded outputs of a plan's nodes that are in the cache.
+type Results struct {
+	Plan      *Plan
+	Ratios    map[*BranchNodes]*stages.RatiosOut
+	Stitch    map[*BranchNodes]*stages.StitchOut
+	Exact     map[*BranchNodes]*stages.ExactOut
+	Transform map[*BranchNodes]*stages.TransformOut
+	Scaling   map[*ScalingNode]*stages.ScalingOut
+}
+
+func load[T any](c *cache.Cache, n *Node) (*T, error) {
+	if n == nil {
+		return nil, nil
+	}
+	b, err := c.Get(n.Key)
+	if err != nil {
+		return nil, err
+	}
+	v := new(T)
+	if err := json.Unmarshal(b, v); err != nil {
+		return nil, fmt.Errorf("%s: %w", n.Name(), err)
+	}
+	return v, nil
+}
+
+// LoadResults reads whatever of the plan's outputs the cache holds.
+func LoadResults(c *cache.Cache, p *Plan) *Results {
+	r := &Results{Plan: p, Ratios: map[*BranchNodes]*stages.RatiosOut{}, Stitch: map[*BranchNodes]*stages.StitchOut{},
+		Exact: map[*BranchNodes]*stages.ExactOut{}, Transform: map[*BranchNodes]*stages.TransformOut{},
+		Scaling: map[*ScalingNode]*stages.ScalingOut{}}
+	for _, b := range p.Branches {
+		if v, err := load[stages.RatiosOut](c, b.Ratios); err == nil {
+			r.Ratios[b] = v
+		}
+		if v, err := load[stages.StitchOut](c, b.Stitch); err == nil {
+			r.Stitch[b] = v
+		}
+		if v, err := load[stages.ExactOut](c, b.Exact); err == nil && v != nil {
+			r.Exact[b] = v
+		}
+		if v, err := load[stages.TransformOut](c, b.Transform); err == nil {
+			r.Transform[b] = v
+		}
+	}
+	for _, s := range p.Scaling {
+		if v, err := load[stages.ScalingOut](c, s.Node); err == nil {
+			r.Scaling[s] = v
+		}
+	}
+	return r
+}
+
+// BuildSummary assembles summary.json from the results.
+func (r *Results) BuildSummary() Summary {
+	st := r.Plan.Study
+	s := Summary{Name: st.Name, Dimension: st.Model.Dimension, Branches: []BranchSummary{}, Scaling: []stages.ScalingOut{}}
+	for _, b := range r.Plan.Branches {
+		bs := BranchSummary{Size: b.Branch.L, Beta: b.Branch.Beta, Dir: b.Branch.Dir()}
+		if t := r.Transform[b]; t != nil {
+			bs.FirstZero = t.FirstZero
+			bs.Reach = ptr(float64(t.Reach))
+			bs.ReachIsLowerBound = t.ReachLowerBound
+			bs.ExactFirstZero = ptr(float64(t.ExactFirstZero))
+		} else if e := r.Exact[b]; e != nil {
+			bs.ExactFirstZero = ptr(float64(e.FirstZero))
+		}
+		if sv := r.Stitch[b]; sv != nil {
+			bs.Warnings = sv.Warnings
+		}
+		s.Branches = append(s.Branches, bs)
+	}
+	for _, sn := range r.Plan.Scaling {
+		if v := r.Scaling[sn]; v != nil {
+			s.Scaling = append(s.Scaling, *v)
+		}
+	}
+	return s
+}
+
+func g(x float64) string {
+	if math.IsNaN(x) {
+		return "nan"
+	}
+	if math.IsInf(x, 0) {
+		if x > 0 {
+			return "inf"
+		}
+		return "-inf"
+	}
+	return stages.F(x)
+}
+
+// csvTable renders columns as CSV with a header line.
+func csvTable(header []string, cols [][]float64) []byte {
+	var b bytes.Buffer
+	b.WriteString(strings.Join(header, ","))
+	b.WriteByte('\n')
+	if len(cols) == 0 {
+		return b.Bytes()
+	}
+	for i := range cols[0] {
+		for j, c := range cols {
+			if j > 0 {
+				b.WriteByte(',')
+			}
+			b.WriteString(g(c[i]))
+		}
+		b.WriteByte('\n')
+	}
+	return b.Bytes()
+}
+
+// Materialize writes the output folder from the cache: manifest.json,
+// summary.json, the per-branch CSVs and the samples. Every file is written
+// atomically; nothing in the cache is modified.
+func Materialize(c *cache.Cache, p *Plan, ran []*Node, outDir string) (*Results, error) {
+	if err := os.MkdirAll(outDir, 0o777); err != nil {
+		return nil, err
+	}
+	_, hash := p.Study.Canonical()
+	man := Manifest{Tool: "strata", Version: ToolVersion, StudyHash: hash, Nodes: []ManifestNode{}}
+	for _, n := range ran {
+		mn := ManifestNode{Stage: n.Task.Stage, Branch: n.Branch, Label: n.Label, Key: n.Key,
+			Status: n.Status, Seconds: n.Seconds, Inputs: []cache.Key{}, Record: n.Record}
+		if n.Err != nil {
+			mn.Status = "failed"
+		}
+		for _, in := range n.Inputs {
+			mn.Inputs = append(mn.Inputs, in.Key)
+		}
+		man.Nodes = append(man.Nodes, mn)
+	}
+	if err := writeJSON(filepath.Join(outDir, "manifest.json"), man); err != nil {
+		return nil, err
+	}
+	res := LoadResults(c, p)
+	for _, b := range p.Branches {
+		if err := res.writeBranch(c, b, outDir); err != nil {
+			return nil, err
+		}
+	}
+	for _, sn := range p.Scaling {
+		if v := res.Scaling[sn]; v != nil {
+			if err := writeScalingCSV(outDir, v); err != nil {
+				return nil, err
+			}
+		}
+	}
+	if err := writeJSON(filepath.Join(outDir, "summary.json"), res.BuildSummary()); err != nil {
+		return nil, err
+	}
+	return res, nil
+}
+
+func (r *Results) writeBranch(c *cache.Cache, b *BranchNodes, outDir string) error {
+	dir := filepath.Join(outDir, b.Branch.Dir())
+	ex := r.Exact[b]
+	if s := r.Stitch[b]; s != nil {
+		ms := make([]float64, len(s.M))
+		for i, m := range s.M {
+			ms[i] = float64(m)
+		}
+		header := []string{"M", "ln_ratio", "ln_ratio_err", "tau_int"}
+		cols := [][]float64{ms, s.LnRatio, s.LnRatioErr, s.Tau}
+		if ex != nil {
+			e := make([]float64, len(s.M))
+			for i, m := range s.M {
+				e[i] = ex.LnRho[(m+s.N)/2] - ex.LnRho[(m-2+s.N)/2]
+			}
+			header = append(header, "ln_ratio_exact")
+			cols = append(cols, e)
+		}
+		if err := writeFileAtomic(filepath.Join(dir, "ratios.csv"), csvTable(header, cols)); err != nil {
+			return err
+		}
+		all := make([]float64, s.N+1)
+		for k := range all {
+			all[k] = float64(2*k - s.N)
+		}
+		header = []string{"M", "ln_rho", "ln_rho_err"}
+		cols = [][]float64{all, s.LnRho, s.LnRhoErr}
+		if ex != nil {
+			header = append(header, "ln_rho_exact")
+			cols = append(cols, ex.LnRho)
+		}
+		if err := writeFileAtomic(filepath.Join(dir, "density.csv"), csvTable(header, cols)); err != nil {
+			return err
+		}
+	}
+	if t := r.Transform[b]; t != nil {
+		header := []string{"theta", "sign", "sign_err", "im_m", "im_m_err", "delta_f", "delta_f_err"}
+		cols := [][]float64{t.Theta, stages.Floats(t.Sign), stages.Floats(t.SignErr), stages.Floats(t.ImM),
+			stages.Floats(t.ImMErr), stages.Floats(t.DeltaF), stages.Floats(t.DeltaFErr)}
+		if t.HasExact {
+			header = append(header, "sign_exact", "im_m_exact")
+			cols = append(cols, stages.Floats(t.SignExact), stages.Floats(t.ImMExact))
+		}
+		if err := writeFileAtomic(filepath.Join(dir, "transform.csv"), csvTable(header, cols)); err != nil {
+			return err
+		}
+	}
+	return writeSamples(c, b, r.Plan.Study, filepath.Join(dir, "samples"))
+}
+
+// writeSamples hard-links each cached shard's .npy into dir (copying when
+// links are not possible) and writes its metadata sidecar.
+func writeSamples(c *cache.Cache, b *BranchNodes, st *Study, dir string) error {
+	for i, n := range b.Samples {
+		src, err := c.DataPath(n.Key)
+		if err != nil {
+			continue // not sampled yet
+		}
+		sh := b.Shards[i]
+		base := filepath.Join(dir, fmt.Sprintf("M%d_chunk%d", sh.M, sh.Chunk))
+		if err := os.MkdirAll(dir, 0o777); err != nil {
+			return err
+		}
+		tmp := base + ".npy.tmp"
+		os.Remove(tmp)
+		if err := os.Link(src, tmp); err != nil {
+			data, rerr := os.ReadFile(src)
+			if rerr != nil {
+				return rerr
+			}
+			if err := os.WriteFile(tmp, data, 0o444); err != nil {
+				return err
+			}
+		}
+		if err := os.Rename(tmp, base+".npy"); err != nil {
+			return err
+		}
+		meta := map[string]any{
+			"estimator": st.Sample.Estimator, "beta": b.Branch.Beta, "size": b.Branch.L,
+			"dimension": st.Model.Dimension, "sites": b.N, "magnetization": sh.M, "chunk": sh.Chunk,
+			"sweeps": st.Sample.ChunkSweeps, "thermalization": st.Sample.Thermalization,
+			"study_seed": st.Sample.Seed, "seed": shardSeed(st, b.Branch, sh.M, sh.Chunk),
+			"columns": sampleColumns(st.Sample.Estimator, st.Model.Dimension), "key": n.Key,
+		}
+		if err := writeJSON(base+".json", meta); err != nil {
+			return err
+		}
+	}
+	return nil
+}
+
+func sampleColumns(estimator string, d int) []string {
+	switch estimator {
+	case "insertion":
+		return []string{"A: sum_{up} exp(-2 beta h_i) / ((N-M+2)/2)", "B: sum_{down} exp(+2 beta h_i) / ((N+M+2)/2)"}
+	case "bennett":
+		var out []string
+		for _, s := range []string{"up", "down"} {
+			for h := -2 * d; h <= 2*d; h += 2 {
+				out = append(out, fmt.Sprintf("count of %s spins with local field %d", s, h))
+			}
+		}
+		return out
+	}
+	return []string{"fraction of proposals after which the chain was in sector M"}
+}

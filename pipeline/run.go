@@ -1,0 +1,222 @@
+package pipeline
+
+import (
+	"errors"
+	"fmt"
+	"io"
+	"sort"
+	"strings"
+	"sync"
+	"time"
+
+	"strata/cache"
+)
+
+// Runner executes a plan's nodes against a cache.
+type Runner struct {
+	Cache *cache.Cache
+	Jobs  int
+	Log   io.Writer // progress and warnings; nil discards
+	// Live draws a progress line (shards done / total, rate, ETA) that
+	// rewrites itself; otherwise one summary line per stage is printed.
+	Live bool
+	// Only restricts the run to these stages and what they need (nil: all).
+	Only map[string]bool
+	// Shard, when K > 0, runs only the sample shards assigned to task I.
+	ShardI, ShardK int
+}
+
+// Select returns the nodes a run must consider, in dependency order.
+func (r *Runner) Select(p *Plan) []*Node {
+	want := map[*Node]bool{}
+	var mark func(n *Node)
+	mark = func(n *Node) {
+		if want[n] {
+			return
+		}
+		want[n] = true
+		for _, in := range n.Inputs {
+			mark(in)
+		}
+	}
+	for _, n := range p.Nodes {
+		if r.Only == nil || r.Only[n.Task.Stage] {
+			mark(n)
+		}
+	}
+	var shardOf map[*Node]int
+	if r.ShardK > 0 {
+		var samples []*Node
+		for _, n := range p.Nodes {
+			if n.Task.Stage == "sample" {
+				samples = append(samples, n)
+			}
+		}
+		shardOf = ShardOf(samples, r.ShardK)
+	}
+	var out []*Node
+	for _, n := range p.Nodes {
+		if !want[n] {
+			continue
+		}
+		if shardOf != nil {
+			if t, ok := shardOf[n]; ok && t != r.ShardI {
+				continue
+			}
+		}
+		out = append(out, n)
+	}
+	return out
+}
+
+func (r *Runner) logf(format string, args ...any) {
+	if r.Log != nil {
+		fmt.Fprintf(r.Log, format, args...)
+	}
+}
+
+// Run executes the selected nodes level by level; nodes of one level run
+// concurrently on r.Jobs workers. Outputs depend only on inputs, so the
+// results are the same for any number of workers. A node whose inputs
+// failed is skipped. The returned error lists every failed node.
+func (r *Runner) Run(p *Plan) error {
+	nodes := r.Select(p)
+	jobs := r.Jobs
+	if jobs < 1 {
+		jobs = 1
+	}
+	byLevel := map[int][]*Node{}
+	var levels []int
+	for _, n := range nodes {
+		if _, ok := byLevel[n.level]; !ok {
+			levels = append(levels, n.level)
+		}
+		byLevel[n.level] = append(byLevel[n.level], n)
+	}
+	sort.Ints(levels)
+	var failed []string
+	for _, lv := range levels {
+		group := byLevel[lv]
+		r.runGroup(group, jobs)
+		for _, n := range group {
+			if n.Err != nil {
+				failed = append(failed, fmt.Sprintf("%s: %v", n.Name(), n.Err))
+			}
+		}
+	}
+	if len(failed) > 0 {
+		return errors.New(strings.Join(failed, "\n"))
+	}
+	return nil
+}
+
+type stageStats struct {
+	total, done, computed, cached, failed int
+	start                                 time.Time
+}
+
+func (r *Runner) runGroup(group []*Node, jobs int) {
+	stats := map[string]*stageStats{}
+	var order []string
+	for _, n := range group {
+		s := stats[n.Task.Stage]
+		if s == nil {
+			s = &stageStats{start: time.Now()}
+			stats[n.Task.Stage] = s
+			order = append(order, n.Task.Stage)
+		}
+		s.total++
+	}
+	var mu sync.Mutex
+	var wg sync.WaitGroup
+	work := make(chan *Node)
+	for w := 0; w < jobs; w++ {
+		wg.Add(1)
+		go func() {
+			defer wg.Done()
+			for n := range work {
+				r.runNode(n)
+				mu.Lock()
+				s := stats[n.Task.Stage]
+				s.done++
+				switch {
+				case n.Err != nil:
+					s.failed++
+				case n.Status == "cached":
+					s.cached++
+				default:
+					s.computed++
+				}
+				if r.Live {
+					el := time.Since(s.start).Seconds()
+					rate := float64(s.done) / el
+					eta := float64(s.total-s.done) / rate
+					r.logf("\r%-10s %d/%d  %.1f/s  ETA %s   ", n.Task.Stage, s.done, s.total, rate, fmtSeconds(eta))
+				}
+				mu.Unlock()
+			}
+		}()
+	}
+	for _, n := range group {
+		work <- n
+	}
+	close(work)
+	wg.Wait()
+	if r.Live {
+		r.logf("\r%60s\r", "")
+	}
+	for _, name := range order {
+		s := stats[name]
+		line := fmt.Sprintf("%-10s %d nodes: %d computed, %d cached", name, s.total, s.computed, s.cached)
+		if s.failed > 0 {
+			line += fmt.Sprintf(", %d FAILED", s.failed)
+		}
+		r.logf("%s (%.1fs)\n", line, time.Since(s.start).Seconds())
+	}
+}
+
+func fmtSeconds(s float64) string {
+	if s != s || s > 1e7 {
+		return "?"
+	}
+	return (time.Duration(s) * time.Second).String()
+}
+
+// runNode computes one node unless its verified output is cached.
+func (r *Runner) runNode(n *Node) {
+	for _, in := range n.Inputs {
+		if in.Err != nil {
+			n.Err = fmt.Errorf("skipped: input %s failed", in.Name())
+			return
+		}
+	}
+	_, err := r.Cache.Get(n.Key)
+	if err == nil {
+		n.Status = "cached"
+		return
+	}
+	if errors.Is(err, cache.ErrCorrupt) {
+		r.logf("warning: %s: %v; recomputing\n", n.Name(), err)
+	}
+	start := time.Now()
+	inputs := make([][]byte, len(n.Inputs))
+	for i, in := range n.Inputs {
+		b, err := r.Cache.Get(in.Key)
+		if err != nil {
+			n.Err = fmt.Errorf("reading input %s: %v", in.Name(), err)
+			return
+		}
+		inputs[i] = b
+	}
+	out, err := n.Task.Run(inputs)
+	if err != nil {
+		n.Err = err
+		return
+	}
+	if err := r.Cache.Put(n.Key, out); err != nil {
+		n.Err = err
+		return
+	}
+	n.Status = "computed"
+	n.Seconds = time.Since(start).Seconds()
+}

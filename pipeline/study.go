@@ -1,0 +1,392 @@
+package pipeline
+
+import (
+	"encoding/json"
+	"errors"
+	"fmt"
+	"math"
+	"os"
+	"path/filepath"
+	"sort"
+	"strconv"
+	"strings"
+
+	"github.com/BurntSushi/toml"
+
+	"strata/cache"
+	"strata/stages/ratio"
+)
+
+// Study is one resolved study file. Every key except [model] has a default
+// (see Defaults); key names are the public schema documented in README.md.
+type Study struct {
+	Name      string        `toml:"name" json:"name"`
+	Model     ModelSpec     `toml:"model" json:"model"`
+	Sample    SampleSpec    `toml:"sample" json:"sample"`
+	Ratios    RatiosSpec    `toml:"ratios" json:"ratios"`
+	Stitch    StitchSpec    `toml:"stitch" json:"stitch"`
+	Exact     ExactSpec     `toml:"exact" json:"exact"`
+	Transform TransformSpec `toml:"transform" json:"transform"`
+	Scaling   ScalingSpec   `toml:"scaling" json:"scaling"`
+	Expect    []ExpectSpec  `toml:"expect" json:"expect,omitempty"`
+}
+
+// ModelSpec: periodic L^d lattice, inverse temperatures β (J = 1).
+type ModelSpec struct {
+	Dimension int       `toml:"dimension" json:"dimension"`
+	Sizes     []int     `toml:"sizes" json:"sizes"`
+	Betas     []float64 `toml:"betas" json:"betas"`
+}
+
+// SampleSpec configures the sector chains.
+type SampleSpec struct {
+	Sweeps         int    `toml:"sweeps" json:"sweeps"`                 // measured sweeps per sector (rounded up to whole chunks)
+	ChunkSweeps    int    `toml:"chunk_sweeps" json:"chunk_sweeps"`     // sweeps per independent chain (shard)
+	Thermalization int    `toml:"thermalization" json:"thermalization"` // sweeps discarded per chunk
+	Seed           int64  `toml:"seed" json:"seed"`
+	Estimator      string `toml:"estimator" json:"estimator"`
+}
+
+// RatiosSpec configures the error analysis of the ratios.
+type RatiosSpec struct {
+	MinTauRatio  float64 `toml:"min_tau_ratio" json:"min_tau_ratio"`   // refuse n < this·τ_int
+	WarnTauRatio float64 `toml:"warn_tau_ratio" json:"warn_tau_ratio"` // warn n < this·τ_int
+}
+
+// StitchSpec configures the error replicas.
+type StitchSpec struct {
+	Replicas int `toml:"replicas" json:"replicas"`
+}
+
+// ExactSpec configures the exact references.
+type ExactSpec struct {
+	Enabled bool `toml:"enabled" json:"enabled"`
+	MaxBits int  `toml:"max_bits" json:"max_bits"` // precision cap of the high-precision sum
+}
+
+// TransformSpec is the θ grid (θ = Im h, h = βH dimensionless) and the
+// rules for zeros and reach.
+type TransformSpec struct {
+	ThetaMin     float64 `toml:"theta_min" json:"theta_min"`
+	ThetaMax     float64 `toml:"theta_max" json:"theta_max"`
+	ThetaPoints  int     `toml:"theta_points" json:"theta_points"`
+	ReachFactor  float64 `toml:"reach_factor" json:"reach_factor"`   // reach: |sign| ≥ this·σ
+	ZeroFraction float64 `toml:"zero_fraction" json:"zero_fraction"` // replicas with one crossing needed
+}
+
+// ScalingSpec configures the finite-size scaling fit θ₁(L) = θ_c + a L^−y.
+type ScalingSpec struct {
+	Exponent   any  `toml:"exponent" json:"exponent"` // "free" or a number
+	Correction bool `toml:"correction" json:"correction"`
+	MinSize    int  `toml:"min_size" json:"min_size"`
+}
+
+// ExpectSpec is one physics regression expectation.
+type ExpectSpec struct {
+	Branch    string   `toml:"branch" json:"branch,omitempty"`
+	Size      int      `toml:"size" json:"size,omitempty"`
+	Beta      *float64 `toml:"beta" json:"beta,omitempty"`
+	Quantity  string   `toml:"quantity" json:"quantity"`
+	Value     *float64 `toml:"value" json:"value,omitempty"`
+	Exact     bool     `toml:"exact" json:"exact,omitempty"`
+	Sigma     float64  `toml:"sigma" json:"sigma,omitempty"`
+	Tolerance float64  `toml:"tolerance" json:"tolerance,omitempty"`
+	Theta     *float64 `toml:"theta" json:"theta,omitempty"`
+	M         *int     `toml:"M" json:"M,omitempty"`
+}
+
+// Defaults returns a study with every default filled in.
+func Defaults() Study {
+	return Study{
+		Name: "study",
+		Sample: SampleSpec{Sweeps: 4000, ChunkSweeps: 1000, Thermalization: 100,
+			Seed: 1, Estimator: ratio.Insertion},
+		Ratios:    RatiosSpec{MinTauRatio: 100, WarnTauRatio: 1000},
+		Stitch:    StitchSpec{Replicas: 200},
+		Exact:     ExactSpec{Enabled: true, MaxBits: 1 << 14},
+		Transform: TransformSpec{ThetaMin: 0, ThetaMax: 0.5, ThetaPoints: 101, ReachFactor: 2, ZeroFraction: 0.95},
+		Scaling:   ScalingSpec{Exponent: "free"},
+	}
+}
+
+// Problems collects every problem found in a study file.
+type Problems struct {
+	File string
+	List []string
+}
+
+func (p *Problems) add(key, format string, args ...any) {
+	msg := fmt.Sprintf(format, args...)
+	if key != "" {
+		msg = key + ": " + msg
+	}
+	p.List = append(p.List, msg)
+}
+
+func (p *Problems) Error() string {
+	var b strings.Builder
+	for i, m := range p.List {
+		if i > 0 {
+			b.WriteByte('\n')
+		}
+		fmt.Fprintf(&b, "%s: %s", p.File, m)
+	}
+	return b.String()
+}
+
+// LoadStudy reads a study file, applies --set overrides (dotted.key=value,
+// the value in TOML syntax; a bare word is a string) and validates. All
+// problems are reported at once in a *Problems error.
+func LoadStudy(path string, sets []string) (*Study, error) {
+	data, err := os.ReadFile(path)
+	if err != nil {
+		return nil, &Problems{File: path, List: []string{err.Error()}}
+	}
+	return ParseStudy(path, data, sets)
+}
+
+// ParseStudy is LoadStudy on bytes already read; path names them in errors.
+func ParseStudy(path string, data []byte, sets []string) (*Study, error) {
+	st := Defaults()
+	probs := &Problems{File: path}
+	md, err := toml.Decode(string(data), &st)
+	if err != nil {
+		var pe toml.ParseError
+		if errors.As(err, &pe) {
+			probs.add("", "line %d: %s", pe.Position.Line, pe.Message)
+		} else {
+			probs.add("", "%v", err)
+		}
+		return nil, probs
+	}
+	for _, k := range md.Undecoded() {
+		probs.add(k.String(), "unknown key")
+	}
+	if !md.IsDefined("model") {
+		probs.add("model", "the [model] table is required")
+	}
+	for _, s := range sets {
+		if err := applySet(&st, s); err != nil {
+			probs.add("--set "+s, "%v", err)
+		}
+	}
+	st.validate(probs)
+	if len(probs.List) > 0 {
+		return nil, probs
+	}
+	return &st, nil
+}
+
+// ParseSet splits "dotted.key=value" into its table path, key and a TOML
+// document that sets it. A value that is not valid TOML is taken as a
+// string.
+func ParseSet(s string) (doc string, err error) {
+	eq := strings.IndexByte(s, '=')
+	if eq <= 0 {
+		return "", fmt.Errorf("want dotted.key=value")
+	}
+	key, val := strings.TrimSpace(s[:eq]), strings.TrimSpace(s[eq+1:])
+	parts := strings.Split(key, ".")
+	for _, p := range parts {
+		if p == "" || strings.ContainsAny(p, " \t\"'[]=#\n") {
+			return "", fmt.Errorf("malformed key %q", key)
+		}
+	}
+	var probe map[string]any
+	if _, err := toml.Decode("v = "+val, &probe); err != nil || strings.ContainsAny(val, "\n\r") {
+		val = strconv.Quote(val)
+		if _, err := toml.Decode("v = "+val, &probe); err != nil {
+			return "", fmt.Errorf("value %q is not valid", s[eq+1:])
+		}
+	}
+	last := parts[len(parts)-1]
+	if len(parts) == 1 {
+		return last + " = " + val + "\n", nil
+	}
+	return "[" + strings.Join(parts[:len(parts)-1], ".") + "]\n" + last + " = " + val + "\n", nil
+}
+
+func applySet(st *Study, s string) error {
+	doc, err := ParseSet(s)
+	if err != nil {
+		return err
+	}
+	md, err := toml.Decode(doc, st)
+	if err != nil {
+		return err
+	}
+	if u := md.Undecoded(); len(u) > 0 {
+		return fmt.Errorf("unknown key %s", u[0])
+	}
+	return nil
+}
+
+func (st *Study) validate(p *Problems) {
+	if st.Name == "" || strings.ContainsAny(st.Name, `/\`) || strings.Contains(st.Name, "..") || st.Name == "." {
+		p.add("name", "%q must be a plain folder name (no path separators, no \"..\")", st.Name)
+	}
+	m := st.Model
+	if m.Dimension < 1 || m.Dimension > 3 {
+		p.add("model.dimension", "%d must be 1, 2 or 3", m.Dimension)
+	}
+	if len(m.Sizes) == 0 {
+		p.add("model.sizes", "at least one linear size L is required")
+	}
+	seen := map[int]bool{}
+	for _, l := range m.Sizes {
+		if l < 2 {
+			p.add("model.sizes", "L = %d: sizes must be ≥ 2", l)
+		} else if m.Dimension >= 1 && m.Dimension <= 3 && math.Pow(float64(l), float64(m.Dimension)) > 1<<24 {
+			p.add("model.sizes", "L = %d: %d^%d sites is beyond what this tool samples", l, l, m.Dimension)
+		}
+		if seen[l] {
+			p.add("model.sizes", "L = %d appears twice", l)
+		}
+		seen[l] = true
+	}
+	if len(m.Betas) == 0 {
+		p.add("model.betas", "at least one inverse temperature β is required")
+	}
+	seenB := map[float64]bool{}
+	for _, b := range m.Betas {
+		if !(b >= 0) || math.IsInf(b, 0) {
+			p.add("model.betas", "β = %v must be finite and ≥ 0", b)
+		}
+		if seenB[b] {
+			p.add("model.betas", "β = %v appears twice", b)
+		}
+		seenB[b] = true
+	}
+	s := st.Sample
+	if s.Sweeps < 1000 {
+		p.add("sample.sweeps", "%d is below the minimum of 1000 measured sweeps per sector", s.Sweeps)
+	}
+	if s.ChunkSweeps < 100 {
+		p.add("sample.chunk_sweeps", "%d must be ≥ 100", s.ChunkSweeps)
+	}
+	if s.Thermalization < 0 {
+		p.add("sample.thermalization", "%d must be ≥ 0", s.Thermalization)
+	}
+	okEst := false
+	for _, e := range ratio.Estimators {
+		okEst = okEst || s.Estimator == e
+	}
+	if !okEst {
+		p.add("sample.estimator", "%q is not one of %s", s.Estimator, strings.Join(ratio.Estimators, ", "))
+	}
+	if st.Ratios.MinTauRatio < 0 || st.Ratios.WarnTauRatio < 0 {
+		p.add("ratios", "min_tau_ratio and warn_tau_ratio must be ≥ 0")
+	}
+	if st.Stitch.Replicas < 2 {
+		p.add("stitch.replicas", "%d must be ≥ 2", st.Stitch.Replicas)
+	}
+	if st.Exact.MaxBits < 256 {
+		p.add("exact.max_bits", "%d must be ≥ 256", st.Exact.MaxBits)
+	}
+	t := st.Transform
+	for _, kv := range []struct {
+		k string
+		v float64
+	}{{"transform.theta_min", t.ThetaMin}, {"transform.theta_max", t.ThetaMax}} {
+		if !(kv.v >= 0 && kv.v <= math.Pi/2) {
+			p.add(kv.k, "%v is outside [0, π/2]", kv.v)
+		}
+	}
+	if !(t.ThetaMax > t.ThetaMin) {
+		p.add("transform.theta_max", "%v must exceed theta_min = %v", t.ThetaMax, t.ThetaMin)
+	}
+	if t.ThetaPoints < 2 || t.ThetaPoints > 1000001 {
+		p.add("transform.theta_points", "%d must be in 2..1000001", t.ThetaPoints)
+	}
+	if !(t.ReachFactor > 0) {
+		p.add("transform.reach_factor", "%v must be > 0", t.ReachFactor)
+	}
+	if !(t.ZeroFraction > 0 && t.ZeroFraction <= 1) {
+		p.add("transform.zero_fraction", "%v must be in (0, 1]", t.ZeroFraction)
+	}
+	switch e := st.Scaling.Exponent.(type) {
+	case string:
+		if e != "free" {
+			p.add("scaling.exponent", "%q must be \"free\" or a number", e)
+		}
+	case int64:
+		st.Scaling.Exponent = float64(e)
+	case float64:
+	default:
+		p.add("scaling.exponent", "%v must be \"free\" or a number", e)
+	}
+	if x, ok := st.Scaling.Exponent.(float64); ok && !(x > 0) {
+		p.add("scaling.exponent", "%v must be > 0", x)
+	}
+	if st.Scaling.MinSize < 0 {
+		p.add("scaling.min_size", "%d must be ≥ 0", st.Scaling.MinSize)
+	}
+	st.validateExpect(p)
+}
+
+// Chunks returns the number of chunks per sector: sweeps rounded up to
+// whole chunks.
+func (st *Study) Chunks() int {
+	return (st.Sample.Sweeps + st.Sample.ChunkSweeps - 1) / st.Sample.ChunkSweeps
+}
+
+// Grid returns the θ grid.
+func (st *Study) Grid() []float64 {
+	t := st.Transform
+	g := make([]float64, t.ThetaPoints)
+	for i := range g {
+		g[i] = t.ThetaMin + (t.ThetaMax-t.ThetaMin)*float64(i)/float64(t.ThetaPoints-1)
+	}
+	return g
+}
+
+// Canonical returns the study as canonical JSON (fixed field order, floats
+// in shortest round-trip form) and its blake3 hash.
+func (st *Study) Canonical() ([]byte, cache.Key) {
+	b, err := json.Marshal(st)
+	if err != nil {
+		panic(err)
+	}
+	return b, cache.Sum(b)
+}
+
+// Branch is one (L, β) of a study.
+type Branch struct {
+	L    int
+	Beta float64
+}
+
+// Dir is the branch's output folder name, e.g. L16_beta1.
+func (b Branch) Dir() string {
+	return fmt.Sprintf("L%d_beta%s", b.L, fmtFloat(b.Beta))
+}
+
+func fmtFloat(x float64) string { return strconv.FormatFloat(x, 'g', -1, 64) }
+
+// Branches returns the branches ordered by β, then L.
+func (st *Study) Branches() []Branch {
+	var out []Branch
+	betas := append([]float64(nil), st.Model.Betas...)
+	sort.Float64s(betas)
+	sizes := append([]int(nil), st.Model.Sizes...)
+	sort.Ints(sizes)
+	for _, b := range betas {
+		for _, l := range sizes {
+			out = append(out, Branch{L: l, Beta: b})
+		}
+	}
+	return out
+}
+
+// DefaultOutDir returns the default output folder, out/<name> in the
+// working directory.
+func DefaultOutDir(st *Study) string { return filepath.Join("out", st.Name) }
+
+// DefaultCacheDir returns the default cache, .strata-cache beside the study
+// file, unless STRATA_CACHE is set.
+func DefaultCacheDir(studyPath string) string {
+	if d := os.Getenv("STRATA_CACHE"); d != "" {
+		return d
+	}
+	return filepath.Join(filepath.Dir(studyPath), ".strata-cache")
+}

@@ -1,0 +1,130 @@
+package stages
+
+import (
+	"fmt"
+	"math"
+	"sort"
+
+	"strata/stages/exact"
+	"strata/stages/fss"
+	"strata/stages/rng"
+)
+
+// ScalingParams configure the finite-size scaling of one β.
+type ScalingParams struct {
+	Dimension  int
+	Beta       float64
+	Sizes      []int   // of the inputs, in order
+	Exponent   float64 // fixed y; NaN for a free fit
+	Correction bool
+	MinSize    int
+	Replicas   int
+	Seed       uint64
+}
+
+// ScalingOut is one β's scaling result (summary.json → scaling).
+type ScalingOut struct {
+	Beta           float64        `json:"beta"`
+	ThetaC         *ValErr        `json:"theta_c"`
+	Exponent       *ValErr        `json:"exponent"`
+	Amplitude      *ValErr        `json:"amplitude"`
+	Chi2Dof        *float64       `json:"chi2_dof"`
+	Sizes          []int          `json:"sizes"`
+	ExactThetaC    *float64       `json:"exact_theta_c"`
+	ExactFitThetaC *float64       `json:"exact_fit_theta_c"`
+	Note           string         `json:"note,omitempty"`
+	Points         []ScalingPoint `json:"points"`
+}
+
+// ScalingPoint is one size's first zero.
+type ScalingPoint struct {
+	L           int      `json:"L"`
+	Theta1      *float64 `json:"theta1"`
+	Theta1Err   *float64 `json:"theta1_err"`
+	Theta1Exact *float64 `json:"theta1_exact"`
+}
+
+func fptr(x float64) *float64 {
+	if math.IsNaN(x) || math.IsInf(x, 0) {
+		return nil
+	}
+	return &x
+}
+
+// Scaling returns the task fitting θ₁(L) = θ_c + a L^{−y} over the
+// transforms of one β (inputs in the order of p.Sizes). Errors come from
+// R parametric replicas of the zeros (each θ₁ drawn from a normal with its
+// error), refitted one by one.
+func Scaling(p ScalingParams) Task {
+	exp := "free"
+	if !math.IsNaN(p.Exponent) {
+		exp = F(p.Exponent)
+	}
+	return Task{
+		Stage: ScalingStage, Version: scalingVersion,
+		Params: []Param{{"beta", F(p.Beta)}, {"correction", fmt.Sprint(p.Correction)}, {"dimension", I(p.Dimension)},
+			{"exponent", exp}, {"min_size", I(p.MinSize)}, {"replicas", I(p.Replicas)}, {"seed", fmt.Sprint(p.Seed)}},
+		Run: func(inputs [][]byte) ([]byte, error) {
+			out := ScalingOut{Beta: p.Beta, Sizes: []int{}, Points: []ScalingPoint{}}
+			var pts, exactPts []fss.Point
+			for i, b := range inputs {
+				var t TransformOut
+				if err := decode(b, &t); err != nil {
+					return nil, err
+				}
+				sp := ScalingPoint{L: p.Sizes[i], Theta1Exact: fptr(float64(t.ExactFirstZero))}
+				if t.FirstZero != nil {
+					sp.Theta1, sp.Theta1Err = fptr(t.FirstZero.Value), fptr(t.FirstZero.Error)
+				}
+				out.Points = append(out.Points, sp)
+				if t.FirstZero == nil || p.Sizes[i] < p.MinSize || !(t.FirstZero.Error > 0) {
+					continue
+				}
+				pts = append(pts, fss.Point{L: p.Sizes[i], Theta: t.FirstZero.Value, Err: t.FirstZero.Error})
+				if ez := float64(t.ExactFirstZero); !math.IsNaN(ez) {
+					exactPts = append(exactPts, fss.Point{L: p.Sizes[i], Theta: ez, Err: t.FirstZero.Error})
+				}
+			}
+			sort.Slice(pts, func(i, j int) bool { return pts[i].L < pts[j].L })
+			for _, q := range pts {
+				out.Sizes = append(out.Sizes, q.L)
+			}
+			if p.Dimension == 1 {
+				out.ExactThetaC = fptr(exact.RingEdge(p.Beta))
+			}
+			free := math.IsNaN(p.Exponent)
+			y0 := p.Exponent
+			if free {
+				y0 = 2
+			}
+			fit, err := fss.Solve(pts, y0, free, p.Correction)
+			if err != nil {
+				out.Note = fmt.Sprintf("%d resolved sizes ≥ min_size; the fit needs %d", len(pts), fss.Params(free, p.Correction)+1)
+				return encode(out)
+			}
+			if len(exactPts) == len(pts) {
+				if ef, err := fss.Solve(exactPts, y0, free, p.Correction); err == nil {
+					out.ExactFitThetaC = fptr(ef.ThetaC)
+				}
+			}
+			gen := rng.NewRand(p.Seed)
+			var tc, ys, as []float64
+			rep := make([]fss.Point, len(pts))
+			for r := 0; r < p.Replicas; r++ {
+				for i, q := range pts {
+					rep[i] = fss.Point{L: q.L, Theta: q.Theta + q.Err*gen.Norm(), Err: q.Err}
+				}
+				if f, err := fss.Solve(rep, fit.Y, free, p.Correction); err == nil {
+					tc, ys, as = append(tc, f.ThetaC), append(ys, f.Y), append(as, f.A)
+				}
+			}
+			out.ThetaC = &ValErr{fit.ThetaC, stddev(tc)}
+			out.Exponent = &ValErr{fit.Y, stddev(ys)}
+			out.Amplitude = &ValErr{fit.A, stddev(as)}
+			if fit.Dof > 0 {
+				out.Chi2Dof = fptr(fit.Chi2 / float64(fit.Dof))
+			}
+			return encode(out)
+		},
+	}
+}
