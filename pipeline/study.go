@@ -7,6 +7,7 @@ import (
 	"math"
 	"os"
 	"path/filepath"
+	"regexp"
 	"sort"
 	"strconv"
 	"strings"
@@ -188,8 +189,8 @@ func ParseSet(s string) (doc string, err error) {
 	key, val := strings.TrimSpace(s[:eq]), strings.TrimSpace(s[eq+1:])
 	parts := strings.Split(key, ".")
 	for _, p := range parts {
-		if p == "" || strings.ContainsAny(p, " \t\"'[]=#\n") {
-			return "", fmt.Errorf("malformed key %q", key)
+		if !bareKey.MatchString(p) {
+			return "", fmt.Errorf("malformed key %q (want dotted.key=value)", key)
 		}
 	}
 	var probe map[string]any
@@ -205,6 +206,9 @@ func ParseSet(s string) (doc string, err error) {
 	}
 	return "[" + strings.Join(parts[:len(parts)-1], ".") + "]\n" + last + " = " + val + "\n", nil
 }
+
+// bareKey matches a TOML bare key.
+var bareKey = regexp.MustCompile(`^[A-Za-z0-9_-]+$`)
 
 func applySet(st *Study, s string) error {
 	doc, err := ParseSet(s)
@@ -390,3 +394,5 @@ func DefaultCacheDir(studyPath string) string {
 	}
 	return filepath.Join(filepath.Dir(studyPath), ".strata-cache")
 }
+
+func tomlDecode(doc string, v any) (toml.MetaData, error) { return toml.Decode(doc, v) }
