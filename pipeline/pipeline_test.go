@@ -92,11 +92,11 @@ func TestKeysStableUnderReordering(t *testing.T) {
 	if err != nil {
 		t.Fatal(err)
 	}
-	b, err := ParseStudy("b.toml", []byte(tinyReordered+"\nname = \"tiny\"\n"), nil)
+	_, err = ParseStudy("b.toml", []byte(tinyReordered+"\nname = \"tiny\"\n"), nil)
 	if err == nil {
 		t.Fatal("a top-level key after a table belongs to that table: expected an unknown-key error")
 	}
-	b, err = ParseStudy("b.toml", []byte("name = \"tiny\"\n"+tinyReordered), nil)
+	b, err := ParseStudy("b.toml", []byte("name = \"tiny\"\n"+tinyReordered), nil)
 	if err != nil {
 		t.Fatal(err)
 	}
