@@ -25,9 +25,9 @@ type Table struct {
 	N       int
 	Theta   []float64
 	Ms      []int     // positive magnetizations, N, N−2, …
-	cos     []float64 // [g*K + k]
-	msin    []float64
-	hasZero bool // N even: the M = 0 term appears once
+	cos     []float64 // cos(θ_g M_k) at [g*K + k]
+	msin    []float64 // M_k sin(θ_g M_k)
+	hasZero bool      // N even: the M = 0 term appears once
 }
 
 // NewTable builds the tables by the rotation recurrence
@@ -86,8 +86,7 @@ func (t *Table) Eval(lnRho []float64) Values {
 	k := len(w)
 	v := Values{Sign: make([]float64, len(t.Theta)), ImM: make([]float64, len(t.Theta))}
 	for g := range t.Theta {
-		zc := dot(w, t.cos[g*k:(g+1)*k])
-		zs := dot(w, t.msin[g*k:(g+1)*k])
+		zc, zs := dot2(w, t.cos[g*k:(g+1)*k], t.msin[g*k:(g+1)*k])
 		z := w0 + 2*zc
 		v.Sign[g] = z / z0
 		v.ImM[g] = 2 * zs / (z * float64(t.N))
@@ -95,20 +94,23 @@ func (t *Table) Eval(lnRho []float64) Values {
 	return v
 }
 
-func dot(a, b []float64) float64 {
-	b = b[:len(a)]
-	var s0, s1, s2, s3 float64
+// dot2 returns a·b and a·c in one pass over a.
+func dot2(a, b, c []float64) (float64, float64) {
+	b, c = b[:len(a)], c[:len(a)]
+	var s0, s1, t0, t1 float64
 	i := 0
-	for ; i+4 <= len(a); i += 4 {
-		s0 += a[i] * b[i]
-		s1 += a[i+1] * b[i+1]
-		s2 += a[i+2] * b[i+2]
-		s3 += a[i+3] * b[i+3]
+	for ; i+2 <= len(a); i += 2 {
+		a0, a1 := a[i], a[i+1]
+		s0 += a0 * b[i]
+		s1 += a1 * b[i+1]
+		t0 += a0 * c[i]
+		t1 += a1 * c[i+1]
 	}
 	for ; i < len(a); i++ {
 		s0 += a[i] * b[i]
+		t0 += a[i] * c[i]
 	}
-	return (s0 + s1) + (s2 + s3)
+	return s0 + s1, t0 + t1
 }
 
 // SignAt returns sign(θ) at one θ by a direct sum (for root finding).
