@@ -43,3 +43,33 @@ func BenchmarkEfficiency(b *testing.B) {
 		b.ReportMetric(med, "efficiency-ratio")
 	}
 }
+
+// BenchmarkEstimators reports, for each estimator on 2D 16² at β = 0.3, the
+// median over sector pairs of the efficiency 1/(σ²·t) relative to the
+// insertion estimator (t the CPU time per ratio, one core).
+func BenchmarkEstimators(b *testing.B) {
+	const beta = 0.3
+	eff := map[string][]float64{}
+	for it := 0; it < b.N; it++ {
+		for i, est := range ratio.Estimators {
+			start := time.Now()
+			res, _ := estimate(b, est, 2, 16, beta, 1000, 4, uint64(21+i))
+			t := time.Since(start).Seconds() / float64(len(res.Ratios))
+			var e []float64
+			for _, q := range res.Ratios {
+				e = append(e, 1/(q.Err*q.Err*t))
+			}
+			eff[est] = e
+		}
+		for _, est := range ratio.Estimators {
+			var rel []float64
+			for i := range eff[est] {
+				if !math.IsInf(eff[ratio.Insertion][i], 0) {
+					rel = append(rel, eff[est][i]/eff[ratio.Insertion][i])
+				}
+			}
+			sort.Float64s(rel)
+			b.ReportMetric(rel[len(rel)/2], est+"/insertion")
+		}
+	}
+}

@@ -114,6 +114,11 @@ func Sector(c Chain) ([]float64, error) {
 	for k := range thr {
 		thr[k] = threshold(math.Exp(2 * c.Beta * float64(k-off)))
 	}
+	// h[i] is the local field Σ_{j nn i} s_j, kept current on every move
+	h := make([]int8, n)
+	for i := range h {
+		h[i] = int8(lat.Field(s, i))
+	}
 	r := rng.NewRand(c.Seed)
 	nbr := lat.Nbr
 	total := c.Therm + c.Sweeps
@@ -122,30 +127,46 @@ func Sector(c Chain) ([]float64, error) {
 			ia := r.Intn(nu)
 			ib := nu + r.Intn(nd)
 			a, b := sites[ia], sites[ib]
-			ha, hb, bonds := 0, 0, 0
 			na := nbr[int(a)*z : int(a)*z+z]
-			nb := nbr[int(b)*z : int(b)*z+z]
-			for k := 0; k < z; k++ {
-				j := na[k]
-				ha += int(s[j])
+			bonds := 0
+			for _, j := range na {
 				if j == b {
 					bonds++
 				}
-				hb += int(s[nb[k]])
 			}
-			k := hb - ha - 2*bonds + off
+			k := int(h[b]) - int(h[a]) - 2*bonds + off
 			if k < off && r.Uint64() >= thr[k] {
 				continue
 			}
 			s[a], s[b] = -1, 1
 			sites[ia], sites[ib] = b, a
+			for _, j := range na {
+				h[j] -= 2
+			}
+			for _, j := range nbr[int(b)*z : int(b)*z+z] {
+				h[j] += 2
+			}
 		}
 		if sweep >= c.Therm {
 			t := sweep - c.Therm
-			measure(lat, s, out[t*2*w:(t+1)*2*w])
+			histogram(d, s, h, out[t*2*w:(t+1)*2*w])
 		}
 	}
 	return out, nil
+}
+
+// histogram fills hist[0:W] with the up-spin and hist[W:2W] with the
+// down-spin counts of local fields h (bin (h+2d)/2).
+func histogram(d int, s, h []int8, hist []float64) {
+	w := 2*d + 1
+	var cnt [2][7]int
+	for i, si := range s {
+		cnt[(1-si)/2][(int(h[i])+2*d)/2]++
+	}
+	for b := 0; b < w; b++ {
+		hist[b] = float64(cnt[0][b])
+		hist[w+b] = float64(cnt[1][b])
+	}
 }
 
 // measure fills h[0:W] with the up-spin and h[W:2W] with the down-spin
