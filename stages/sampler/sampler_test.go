@@ -3,7 +3,7 @@ package sampler
 import (
 	"fmt"
 	"math"
-		"testing"
+	"testing"
 
 	"strata/stages/lattice"
 	"strata/stages/sampler/baseline"
