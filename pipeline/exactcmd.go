@@ -19,7 +19,8 @@ const exactUsage = `Usage: strata exact --dimension D --size L --beta B [--theta
 Prints exact references for the periodic L^d lattice as CSV on stdout
 (theta,sign_exact,im_m_exact; sign = Z(β,iθ)/Z(β,0), im_m = Im<M>/N), after
 comment lines (#) with the first zero and, in d = 1, the Lee–Yang edge.
-Available: d = 1 any L (closed forms); d = 2, 3 with L^d ≤ 27 (enumeration).
+Available: d = 1 any L (closed forms); d = 2 with L ≤ 8 (transfer matrix);
+d = 3 with L^3 ≤ 27 (enumeration).
 
 Flags:
 `
@@ -59,7 +60,7 @@ func (e *env) exactCommand(args []string) int {
 		probs = append(probs, "need 0 ≤ theta-min < theta-max ≤ π/2 and theta-points ≥ 2")
 	}
 	if len(probs) == 0 && !stages.ExactAvailable(*d, *l) {
-		probs = append(probs, fmt.Sprintf("no exact reference for %d^%d sites (d = 1 any size; d = 2, 3 up to 27 sites)", *l, *d))
+		probs = append(probs, fmt.Sprintf("no exact reference for %d^%d sites (d = 1 any size; d = 2 up to L = 8; d = 3 up to 27 sites)", *l, *d))
 	}
 	if len(probs) > 0 {
 		for _, p := range probs {
@@ -67,7 +68,16 @@ func (e *env) exactCommand(args []string) int {
 		}
 		return ExitUsage
 	}
-	b, err := stages.Exact(*d, *l, *beta).Run(nil)
+	var in [][]byte
+	if stages.NeedsCounts(*d, *l) {
+		cb, err := stages.ExactCounts(*d, *l).Run(nil)
+		if err != nil {
+			fmt.Fprintf(e.stderr, "strata exact: %v\n", err)
+			return ExitFail
+		}
+		in = append(in, cb)
+	}
+	b, err := stages.Exact(*d, *l, *beta).Run(in)
 	if err != nil {
 		fmt.Fprintf(e.stderr, "strata exact: %v\n", err)
 		return ExitFail

@@ -121,6 +121,7 @@ func BuildPlan(st *Study) *Plan {
 		Points: st.Transform.ThetaPoints, ReachFactor: st.Transform.ReachFactor,
 		ZeroFraction: st.Transform.ZeroFraction, MaxBits: st.Exact.MaxBits}
 	byBeta := map[float64][]*BranchNodes{}
+	counts := map[int]*Node{} // β-independent exact counts per size
 	for _, b := range st.Branches() {
 		n := int(math.Round(math.Pow(float64(b.L), float64(d))))
 		bn := &BranchNodes{Branch: b, N: n}
@@ -142,7 +143,17 @@ func BuildPlan(st *Study) *Plan {
 		bn.Stitch = newNode(stages.Stitch(st.Stitch.Replicas, replicaSeed(st, b)), dir, "", bn.Ratios)
 		tin := []*Node{bn.Stitch}
 		if st.Exact.Enabled && stages.ExactAvailable(d, b.L) {
-			bn.Exact = newNode(stages.Exact(d, b.L, b.Beta), dir, "")
+			var ein []*Node
+			if stages.NeedsCounts(d, b.L) {
+				cn := counts[b.L]
+				if cn == nil {
+					cn = newNode(stages.ExactCounts(d, b.L), fmt.Sprintf("counts_L%d", b.L), "")
+					counts[b.L] = cn
+					p.Nodes = append(p.Nodes, cn)
+				}
+				ein = append(ein, cn)
+			}
+			bn.Exact = newNode(stages.Exact(d, b.L, b.Beta), dir, "", ein...)
 			tin = append(tin, bn.Exact)
 		}
 		bn.Transform = newNode(stages.Transform(tp), dir, "", tin...)

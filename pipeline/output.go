@@ -186,7 +186,7 @@ func g(x float64) string {
 		}
 		return "-inf"
 	}
-	return stages.F(x)
+	return stages.F(x + 0) // +0 turns −0 into 0
 }
 
 // csvTable renders columns as CSV with a header line.

@@ -133,7 +133,7 @@ func stddev(x []float64) float64 {
 
 // ExactOut is an exact reference for one branch.
 type ExactOut struct {
-	Kind      string // "ring" (closed forms) or "enumeration"
+	Kind      string // "ring" (closed forms) or "counts" (exact g(S, M))
 	D, N      int
 	Beta      float64
 	LnRho     []float64
@@ -141,20 +141,54 @@ type ExactOut struct {
 	Counts    *exact.Counts `json:",omitempty"`
 }
 
-// ExactAvailable reports whether an exact reference exists for L^d.
+// ExactAvailable reports whether an exact reference exists for L^d: the
+// ring closed forms for d = 1, the torus transfer matrix for d = 2 up to
+// L = 8, enumeration for d = 3 up to 27 sites.
 func ExactAvailable(d, l int) bool {
-	if d == 1 {
+	switch d {
+	case 1:
 		return true
+	case 2:
+		return l <= exact.MaxTorusSize
 	}
 	return math.Pow(float64(l), float64(d)) <= exact.MaxEnumerateSites
 }
 
-// Exact returns the task computing the exact reference of one branch.
+// NeedsCounts reports whether the exact reference of L^d is built from
+// integer counts g(S, M) (which do not depend on β and are cached apart).
+func NeedsCounts(d, l int) bool { return d > 1 && ExactAvailable(d, l) }
+
+// ExactCounts returns the task computing g(S, M) for L^d (d ≥ 2).
+func ExactCounts(d, l int) Task {
+	return Task{
+		Stage: ExactStage, Version: exactVersion,
+		Params: []Param{{"counts", "g(S,M)"}, {"dimension", I(d)}, {"size", I(l)}},
+		Run: func([][]byte) ([]byte, error) {
+			var c *exact.Counts
+			var err error
+			if d == 2 {
+				c, err = exact.TorusCounts(l)
+			} else {
+				var lat *lattice.Lattice
+				if lat, err = lattice.New(d, l); err == nil {
+					c, err = exact.Enumerate(lat)
+				}
+			}
+			if err != nil {
+				return nil, err
+			}
+			return encode(c)
+		},
+	}
+}
+
+// Exact returns the task computing the exact reference of one branch; for
+// d ≥ 2 inputs[0] is the output of ExactCounts(d, l).
 func Exact(d, l int, beta float64) Task {
 	return Task{
 		Stage: ExactStage, Version: exactVersion,
 		Params: []Param{{"beta", F(beta)}, {"dimension", I(d)}, {"size", I(l)}},
-		Run: func([][]byte) ([]byte, error) {
+		Run: func(inputs [][]byte) ([]byte, error) {
 			lat, err := lattice.New(d, l)
 			if err != nil {
 				return nil, err
@@ -166,12 +200,15 @@ func Exact(d, l int, beta float64) Task {
 				out.FirstZero = NullableFloat(exact.RingFirstZero(lat.N, beta))
 				return encode(out)
 			}
-			c, err := exact.Enumerate(lat)
-			if err != nil {
+			if len(inputs) != 1 {
+				return nil, fmt.Errorf("exact reference for d=%d needs the counts as input", d)
+			}
+			var c exact.Counts
+			if err := decode(inputs[0], &c); err != nil {
 				return nil, err
 			}
-			out.Kind = "enumeration"
-			out.Counts = c
+			out.Kind = "counts"
+			out.Counts = &c
 			out.LnRho = c.LnRho(beta)
 			out.FirstZero = NullableFloat(firstZeroScan(lat.N, out.LnRho))
 			return encode(out)
@@ -180,9 +217,10 @@ func Exact(d, l int, beta float64) Task {
 }
 
 // firstZeroScan finds the first sign change of Z(iθ) on (0, π/2] from an
-// exact ln ρ (float64 is adequate for the small lattices enumerated: the
-// sign near their first zero is far above 1e−13) and refines it by
-// bisection; NaN if there is none.
+// exact ln ρ and refines it by bisection; NaN if there is none. float64 is
+// adequate for the lattices with counts (N ≤ 64) where the sign near the
+// first zero is far above 1e−13; the exact-zero test of package exact
+// checks this against the high-precision sum.
 func firstZeroScan(n int, lnRho []float64) float64 {
 	const steps = 4000
 	prev := 1.0

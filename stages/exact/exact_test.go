@@ -260,3 +260,53 @@ func TestLeeYangCircle(t *testing.T) {
 		}
 	}
 }
+
+// The torus transfer matrix against brute-force enumeration.
+func TestTorusTransferMatchesEnumeration(t *testing.T) {
+	for l := 2; l <= 5; l++ {
+		a, err := TorusCounts(l)
+		if err != nil {
+			t.Fatal(err)
+		}
+		b, _ := Enumerate(lat(t, 2, l))
+		for i := range b.G {
+			for k := range b.G[i] {
+				if a.G[i][k] != b.G[i][k] {
+					t.Fatalf("L=%d g(S=%d, M=%d): transfer %d, enumeration %d", l, 2*i-b.Bonds, 2*k-b.N, a.G[i][k], b.G[i][k])
+				}
+			}
+		}
+	}
+}
+
+// Σ_M ρ from the transfer-matrix counts against Kaufman's finite torus
+// (Phys. Rev. 76, 1232 (1949)) for L = 6, 7 (and 8 outside -short).
+func TestTorusTransferKaufman(t *testing.T) {
+	sizes := []int{6, 7}
+	if !testing.Short() {
+		sizes = append(sizes, 8)
+	}
+	for _, l := range sizes {
+		c, err := TorusCounts(l)
+		if err != nil {
+			t.Fatal(err)
+		}
+		for _, beta := range []float64{0.1, 0.3, 0.6} {
+			want := KaufmanLnZ(l, l, beta)
+			got := logSumExp(c.LnRho(beta))
+			if math.Abs(got-want) > 1e-11*math.Abs(want) {
+				t.Errorf("L=%d β=%v: ln Σρ = %.15g, Kaufman %.15g", l, beta, got, want)
+			}
+		}
+		// total number of states 2^N (mod 2^64 at L = 8, where it is 0)
+		var sum uint64
+		for _, row := range c.G {
+			for _, v := range row {
+				sum += v
+			}
+		}
+		if want := uint64(1) << uint(l*l%64); l*l < 64 && sum != want || l*l == 64 && sum != 0 {
+			t.Errorf("L=%d: Σg = %d", l, sum)
+		}
+	}
+}
