@@ -38,6 +38,7 @@ Commands:
   run     STUDY.toml   run what is stale, reuse what is cached, write the outputs
   plan    STUDY.toml   show which nodes would run and which parameter made each stale
   show    STUDY.toml   print the headline results of a finished run
+  budget  STUDY.toml   predict the sweeps needed to push the reach to a given θ
   exact                print exact references for one lattice
   cache   verify|ls|gc manage the cache
 
@@ -63,6 +64,8 @@ func Main(args []string, stdout, stderr io.Writer) int {
 		return e.studyCommand("show", args[1:])
 	case "exact":
 		return e.exactCommand(args[1:])
+	case "budget":
+		return e.budgetCommand(args[1:])
 	case "cache":
 		return e.cacheCommand(args[1:])
 	}

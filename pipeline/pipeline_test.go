@@ -390,3 +390,30 @@ func TestHelpExitsZero(t *testing.T) {
 		t.Errorf("run without study exit %d, want 2", code)
 	}
 }
+
+func TestShowExactBudgetCommands(t *testing.T) {
+	dir := t.TempDir()
+	study := writeStudy(t, dir, "tiny.toml", tinyStudy)
+	out := filepath.Join(dir, "out")
+	if code, _, e := runCLI(t, "show", study); code != 0 || !strings.Contains(e, "no results yet") {
+		t.Errorf("show before a run: exit %d, %q", code, e)
+	}
+	if code, _, e := runCLI(t, "run", study, "--out", out); code != 0 {
+		t.Fatal(e)
+	}
+	code, stdout, _ := runCLI(t, "show", study)
+	if code != 0 || !strings.Contains(stdout, "L8_beta0.4") || !strings.Contains(stdout, "±") {
+		t.Errorf("show: exit %d\n%s", code, stdout)
+	}
+	code, stdout, _ = runCLI(t, "budget", study, "--theta", "0.6")
+	if code != 0 || !strings.Contains(stdout, "exact") || !strings.Contains(stdout, "sweeps needed") {
+		t.Errorf("budget: exit %d\n%s", code, stdout)
+	}
+	code, stdout, _ = runCLI(t, "exact", "--dimension", "1", "--size", "64", "--beta", "0.45", "--theta-max", "0.6", "--theta-points", "121")
+	if code != 0 || strings.Count(stdout, "\n") != 3+1+121 || !strings.Contains(stdout, "# first_zero 0.41937") {
+		t.Errorf("exact: exit %d\n%.300s", code, stdout)
+	}
+	if code, _, _ := runCLI(t, "exact", "--dimension", "3", "--size", "5", "--beta", "0.2"); code != 2 {
+		t.Errorf("exact beyond the limits: exit %d, want 2", code)
+	}
+}

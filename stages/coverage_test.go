@@ -1,0 +1,127 @@
+package stages
+
+import (
+	"encoding/json"
+	"fmt"
+	"math"
+	"testing"
+
+	"strata/stages/exact"
+	"strata/stages/lattice"
+	"strata/stages/ratio"
+)
+
+// runBranch pushes one branch through sample → ratios → stitch → transform
+// in-process and returns the stitch and transform outputs.
+func runBranch(t testing.TB, d, l int, beta float64, chunks, sweeps int, seed uint64, grid TransformParams) (*StitchOut, *TransformOut) {
+	t.Helper()
+	lat, _ := lattice.New(d, l)
+	var shards []Shard
+	var inputs [][]byte
+	for _, m := range ratio.Sectors(ratio.Insertion, lat.N) {
+		for c := 0; c < chunks; c++ {
+			b, err := Sample(SampleParams{D: d, L: l, Beta: beta, Estimator: ratio.Insertion, M: m, Chunk: c,
+				Sweeps: sweeps, Therm: 100, Seed: seed*7919 + uint64(1000*m+c)}).Run(nil)
+			if err != nil {
+				t.Fatal(err)
+			}
+			shards = append(shards, Shard{m, c})
+			inputs = append(inputs, b)
+		}
+	}
+	rb, err := Ratios(RatiosParams{D: d, L: l, Beta: beta, Estimator: ratio.Insertion, MinTauRatio: 100, Shards: shards}).Run(inputs)
+	if err != nil {
+		t.Fatal(err)
+	}
+	sb, err := Stitch(200, seed).Run([][]byte{rb})
+	if err != nil {
+		t.Fatal(err)
+	}
+	tb, err := Transform(grid).Run([][]byte{sb})
+	if err != nil {
+		t.Fatal(err)
+	}
+	var s StitchOut
+	var tr TransformOut
+	if json.Unmarshal(sb, &s) != nil || json.Unmarshal(tb, &tr) != nil {
+		t.Fatal("decode")
+	}
+	return &s, &tr
+}
+
+type coverage struct{ in1, in2, n int }
+
+func (c *coverage) add(value, err, exact float64) {
+	p := math.Abs(value-exact) / err
+	if p <= 1 {
+		c.in1++
+	}
+	if p <= 2 {
+		c.in2++
+	}
+	c.n++
+}
+
+// check applies binomial bands with about 1% false alarms for 200 runs:
+// 1σ coverage (68.3%) within 60–76%, 2σ coverage (95.4%) at least 91%.
+func (c *coverage) check(t *testing.T, what string) {
+	f1, f2 := float64(c.in1)/float64(c.n), float64(c.in2)/float64(c.n)
+	t.Logf("%s: 1σ coverage %.3f, 2σ coverage %.3f over %d runs", what, f1, f2, c.n)
+	if f1 < 0.60 || f1 > 0.76 || f2 < 0.91 {
+		t.Errorf("%s: 1σ coverage %.3f (want 0.60–0.76), 2σ %.3f (want ≥ 0.91)", what, f1, f2)
+	}
+}
+
+// Coverage of the error bars against exact results, one pull per
+// independent run: the 1D ring against the transfer-matrix closed forms
+// (R. J. Baxter, Exactly Solved Models, ch. 2) and the ring domain count,
+// the 2D 4×4 torus against exact enumeration.
+func TestCoverage(t *testing.T) {
+	if testing.Short() {
+		t.Skip("200 independent runs per case")
+	}
+	cases := []struct {
+		d, l   int
+		beta   float64
+		theta  float64 // grid point below the reach
+		m      int     // magnetization for ln ρ
+		chunks int
+	}{
+		{1, 10, 0.5, 0.25, 2, 2},
+		{2, 4, 0.3, 0.1, 4, 2},
+	}
+	for _, c := range cases {
+		grid := TransformParams{ThetaMin: 0, ThetaMax: 2 * c.theta, Points: 11, ReachFactor: 2, ZeroFraction: 0.95, MaxBits: 4096}
+		var lnRho, sign, imM []float64
+		n := 0
+		switch c.d {
+		case 1:
+			n = c.l
+			lnRho = exact.RingLnRho(n, c.beta)
+			s, m := exact.RingSign(n, c.beta, c.theta)
+			sign, imM = []float64{s}, []float64{m}
+		case 2:
+			cn, _ := exact.TorusCounts(c.l)
+			n = cn.N
+			lnRho = cn.LnRho(c.beta)
+			s, m := exact.HighPrecision(cn.Rho(c.beta), n, c.theta, 1e-12, 4096)
+			sign, imM = []float64{s}, []float64{m}
+		}
+		var cs, cm, cr coverage
+		for seed := uint64(1); seed <= 200; seed++ {
+			st, tr := runBranch(t, c.d, c.l, c.beta, c.chunks, 1000, seed, grid)
+			g := 5 // θ = grid[5] = c.theta
+			if math.Abs(tr.Theta[g]-c.theta) > 1e-12 {
+				t.Fatalf("grid point %v, want %v", tr.Theta[g], c.theta)
+			}
+			cs.add(float64(tr.Sign[g]), float64(tr.SignErr[g]), sign[0])
+			cm.add(float64(tr.ImM[g]), float64(tr.ImMErr[g]), imM[0])
+			k := (c.m + n) / 2
+			cr.add(st.LnRho[k], st.LnRhoErr[k], lnRho[k])
+		}
+		label := fmt.Sprintf("d=%d L=%d β=%v", c.d, c.l, c.beta)
+		cs.check(t, label+" sign(θ)")
+		cm.check(t, label+" Im m(θ)")
+		cr.check(t, label+" ln ρ(M)")
+	}
+}
