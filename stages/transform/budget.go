@@ -7,14 +7,14 @@ import (
 
 // Prediction is the statistics needed to push the reach to θ = X.
 type Prediction struct {
-	Theta    float64 // X
-	Sweeps   float64 // predicted measured sweeps per sector
-	Sign     float64 // |sign(X)| used
-	Sigma    float64 // σ_sign(X) measured with the current sweeps
-	Source   string  // "exact", "measured" or "extrapolated"
-	Chi      float64 // fitted χ in −ln|sign| ≈ Nχθ²/2 (extrapolated only)
-	Factor   float64 // reach factor f
-	Current  float64 // current sweeps per sector
+	Theta   float64 // X
+	Sweeps  float64 // predicted measured sweeps per sector
+	Sign    float64 // |sign(X)| used
+	Sigma   float64 // σ_sign(X) measured with the current sweeps
+	Source  string  // "exact", "measured" or "extrapolated"
+	Chi     float64 // fitted χ in −ln|sign| ≈ Nχθ²/2 (extrapolated only)
+	Factor  float64 // reach factor f
+	Current float64 // current sweeps per sector
 }
 
 // Budget predicts the sweeps per sector S* at which |sign(X)| = f·σ(X):
