@@ -38,6 +38,7 @@ Commands:
   run     STUDY.toml   run what is stale, reuse what is cached, write the outputs
   plan    STUDY.toml   show which nodes would run and which parameter made each stale
   show    STUDY.toml   print the headline results of a finished run
+  check   STUDY.toml   run, then test the study's [[expect]] entries (and a baseline)
   budget  STUDY.toml   predict the sweeps needed to push the reach to a given θ
   exact                print exact references for one lattice
   cache   verify|ls|gc manage the cache
@@ -62,6 +63,8 @@ func Main(args []string, stdout, stderr io.Writer) int {
 		return e.studyCommand("plan", args[1:])
 	case "show":
 		return e.studyCommand("show", args[1:])
+	case "check":
+		return e.studyCommand("check", args[1:])
 	case "exact":
 		return e.exactCommand(args[1:])
 	case "budget":
@@ -103,6 +106,8 @@ type studyFlags struct {
 	stages           string
 	explain          bool
 	shard            string
+	baseline, junit  string
+	sigma            float64
 }
 
 func (e *env) newFlagSet(name, usage string) *flag.FlagSet {
@@ -119,6 +124,9 @@ var studyUsages = map[string]string{
 	"run":  "Usage: strata run STUDY.toml [flags]\n\nRuns every stale node of the study (reusing cached ones) and writes the output folder.\n\nFlags:\n",
 	"plan": "Usage: strata plan STUDY.toml [flags]\n\nDry run: lists the nodes a run would compute and, for each, which parameter made it stale.\n\nFlags:\n",
 	"show": "Usage: strata show STUDY.toml [flags]\n\nPrints the headline results (first zeros, reach, scaling) from the cache.\n\nFlags:\n",
+	"check": "Usage: strata check STUDY.toml [--baseline summary.json] [--sigma 3] [--junit report.xml] [flags]\n\n" +
+		"Runs the study like 'run', then evaluates its [[expect]] entries and, with --baseline, compares every\n" +
+		"headline number with a stored summary.json. Exit 0 when all hold, 1 when any fails, 2 on bad usage\nor a bad expectation.\n\nFlags:\n",
 }
 
 func (e *env) studyCommand(cmd string, args []string) int {
@@ -128,6 +136,11 @@ func (e *env) studyCommand(cmd string, args []string) int {
 	fs.StringVar(&f.outDir, "out", "", "output directory (default out/<name>)")
 	fs.Var(&f.sets, "set", "override a study key: dotted.key=value in TOML syntax (repeatable)")
 	fs.IntVar(&f.jobs, "jobs", runtime.NumCPU(), "number of concurrent workers")
+	if cmd == "check" {
+		fs.StringVar(&f.baseline, "baseline", "", "compare with this stored summary.json")
+		fs.Float64Var(&f.sigma, "sigma", 3, "baseline tolerance in combined standard errors")
+		fs.StringVar(&f.junit, "junit", "", "also write the outcomes as JUnit XML to this file")
+	}
 	if cmd == "run" || cmd == "plan" {
 		fs.StringVar(&f.stages, "stages", "", "comma-separated stages to run, with what they need (sample,ratios,stitch,exact,transform,scaling)")
 		fs.StringVar(&f.shard, "shard", "", "i/K: run only the sample shards assigned to task i of K (with --stages sample)")
@@ -205,13 +218,17 @@ func (e *env) studyCommand(cmd string, args []string) int {
 		}
 		return ExitOK
 	}
-	if _, err := Materialize(c, plan, ran, f.outDir); err != nil {
-		fmt.Fprintf(e.stderr, "strata run: writing outputs: %v\n", err)
+	res, err := Materialize(c, plan, ran, f.outDir)
+	if err != nil {
+		fmt.Fprintf(e.stderr, "strata %s: writing outputs: %v\n", cmd, err)
 		return ExitFail
 	}
 	if runErr != nil {
-		fmt.Fprintf(e.stderr, "strata run: failed:\n%v\n", runErr)
+		fmt.Fprintf(e.stderr, "strata %s: failed:\n%v\n", cmd, runErr)
 		return ExitFail
+	}
+	if cmd == "check" {
+		return e.check(st, res, f.baseline, f.junit, f.sigma)
 	}
 	fmt.Fprintf(e.stderr, "done in %.1fs; outputs in %s\n", time.Since(start).Seconds(), f.outDir)
 	return ExitOK

@@ -3,6 +3,7 @@ package stages
 import (
 	"fmt"
 	"math"
+	"strata/stages/analysis"
 
 	"strata/stages/dos"
 	"strata/stages/exact"
@@ -108,27 +109,11 @@ func Stitch(replicas int, seed uint64) Task {
 				for j, rep := range out.Replicas {
 					col[j] = rep[k]
 				}
-				out.LnRhoErr[k] = stddev(col)
+				out.LnRhoErr[k] = analysis.StdDev(col)
 			}
 			return encode(out)
 		},
 	}
-}
-
-func stddev(x []float64) float64 {
-	if len(x) < 2 {
-		return 0
-	}
-	m := 0.0
-	for _, v := range x {
-		m += v
-	}
-	m /= float64(len(x))
-	s := 0.0
-	for _, v := range x {
-		s += (v - m) * (v - m)
-	}
-	return math.Sqrt(s / float64(len(x)-1))
 }
 
 // ExactOut is an exact reference for one branch.

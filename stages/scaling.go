@@ -4,6 +4,7 @@ import (
 	"fmt"
 	"math"
 	"sort"
+	"strata/stages/analysis"
 
 	"strata/stages/exact"
 	"strata/stages/fss"
@@ -118,9 +119,9 @@ func Scaling(p ScalingParams) Task {
 					tc, ys, as = append(tc, f.ThetaC), append(ys, f.Y), append(as, f.A)
 				}
 			}
-			out.ThetaC = &ValErr{fit.ThetaC, stddev(tc)}
-			out.Exponent = &ValErr{fit.Y, stddev(ys)}
-			out.Amplitude = &ValErr{fit.A, stddev(as)}
+			out.ThetaC = &ValErr{fit.ThetaC, analysis.StdDev(tc)}
+			out.Exponent = &ValErr{fit.Y, analysis.StdDev(ys)}
+			out.Amplitude = &ValErr{fit.A, analysis.StdDev(as)}
 			if fit.Dof > 0 {
 				out.Chi2Dof = fptr(fit.Chi2 / float64(fit.Dof))
 			}

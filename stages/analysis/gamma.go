@@ -105,3 +105,27 @@ func allEqual(reps [][]float64) bool {
 	}
 	return true
 }
+
+// StdDev returns the sample standard deviation √(Σ(x−x̄)²/(n−1)); a
+// constant sample gives exactly 0 (not a rounding residue), fewer than two
+// values give 0.
+func StdDev(x []float64) float64 {
+	if len(x) < 2 {
+		return 0
+	}
+	m := 0.0
+	constant := true
+	for _, v := range x {
+		m += v
+		constant = constant && v == x[0]
+	}
+	if constant {
+		return 0
+	}
+	m /= float64(len(x))
+	s := 0.0
+	for _, v := range x {
+		s += (v - m) * (v - m)
+	}
+	return math.Sqrt(s / float64(len(x)-1))
+}

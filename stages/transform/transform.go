@@ -17,6 +17,7 @@ package transform
 import (
 	"math"
 	"sort"
+	"strata/stages/analysis"
 )
 
 // Table holds cos(θ_g M) and M sin(θ_g M) for M = M_1 > M_2 > … > 0 on a
@@ -164,30 +165,17 @@ func Evaluate(t *Table, central []float64, replicas [][]float64) *Curve {
 		for j := range replicas {
 			col[j] = c.ReplicaSign[j][i]
 		}
-		c.SignErr[i] = stddev(col)
+		c.SignErr[i] = analysis.StdDev(col)
 		for j := range replicas {
 			col[j] = -math.Log(math.Abs(c.ReplicaSign[j][i])) / n
 		}
-		c.DeltaFErr[i] = stddev(col)
+		c.DeltaFErr[i] = analysis.StdDev(col)
 		for j := range replicas {
 			col[j] = c.ReplicaImM[j][i]
 		}
-		c.ImMErr[i] = stddev(col)
+		c.ImMErr[i] = analysis.StdDev(col)
 	}
 	return c
-}
-
-func stddev(x []float64) float64 {
-	m := 0.0
-	for _, v := range x {
-		m += v
-	}
-	m /= float64(len(x))
-	s := 0.0
-	for _, v := range x {
-		s += (v - m) * (v - m)
-	}
-	return math.Sqrt(s / float64(len(x)-1))
 }
 
 // Zero is the first Lee–Yang zero on the grid.
