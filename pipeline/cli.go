@@ -218,7 +218,12 @@ func (e *env) studyCommand(cmd string, args []string) int {
 		}
 		return ExitOK
 	}
-	res, err := Materialize(c, plan, ran, f.outDir)
+	text, _ := os.ReadFile(path)
+	studyText := string(text)
+	for _, s := range f.sets {
+		studyText += "\n# --set " + s
+	}
+	res, reportPath, err := Materialize(c, plan, ran, f.outDir, studyText)
 	if err != nil {
 		fmt.Fprintf(e.stderr, "strata %s: writing outputs: %v\n", cmd, err)
 		return ExitFail
@@ -230,7 +235,7 @@ func (e *env) studyCommand(cmd string, args []string) int {
 	if cmd == "check" {
 		return e.check(st, res, f.baseline, f.junit, f.sigma)
 	}
-	fmt.Fprintf(e.stderr, "done in %.1fs; outputs in %s\n", time.Since(start).Seconds(), f.outDir)
+	fmt.Fprintf(e.stderr, "done in %.1fs; outputs in %s; report: %s\n", time.Since(start).Seconds(), f.outDir, reportPath)
 	return ExitOK
 }
 

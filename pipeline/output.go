@@ -81,6 +81,9 @@ func writeFileAtomic(path string, data []byte) error {
 		werr = cerr
 	}
 	if werr == nil {
+		werr = os.Chmod(f.Name(), 0o644)
+	}
+	if werr == nil {
 		werr = os.Rename(f.Name(), path)
 	}
 	if werr != nil {
@@ -212,9 +215,12 @@ func csvTable(header []string, cols [][]float64) []byte {
 // Materialize writes the output folder from the cache: manifest.json,
 // summary.json, the per-branch CSVs and the samples. Every file is written
 // atomically; nothing in the cache is modified.
-func Materialize(c *cache.Cache, p *Plan, ran []*Node, outDir string) (*Results, error) {
+//
+// studyText is the study file as given (with any overrides noted); it is
+// shown in the report, whose path is returned.
+func Materialize(c *cache.Cache, p *Plan, ran []*Node, outDir, studyText string) (*Results, string, error) {
 	if err := os.MkdirAll(outDir, 0o777); err != nil {
-		return nil, err
+		return nil, "", err
 	}
 	_, hash := p.Study.Canonical()
 	man := Manifest{Tool: "strata", Version: ToolVersion, StudyHash: hash, Nodes: []ManifestNode{}}
@@ -230,72 +236,112 @@ func Materialize(c *cache.Cache, p *Plan, ran []*Node, outDir string) (*Results,
 		man.Nodes = append(man.Nodes, mn)
 	}
 	if err := writeJSON(filepath.Join(outDir, "manifest.json"), man); err != nil {
-		return nil, err
+		return nil, "", err
 	}
 	res := LoadResults(c, p)
 	for _, b := range p.Branches {
 		if err := res.writeBranch(c, b, outDir); err != nil {
-			return nil, err
+			return nil, "", err
 		}
 	}
 	for _, sn := range p.Scaling {
 		if v := res.Scaling[sn]; v != nil {
 			if err := writeScalingCSV(outDir, v); err != nil {
-				return nil, err
+				return nil, "", err
 			}
 		}
 	}
 	if err := writeJSON(filepath.Join(outDir, "summary.json"), res.BuildSummary()); err != nil {
-		return nil, err
+		return nil, "", err
 	}
-	return res, nil
+	rp, err := res.writeReport(outDir, man, studyText)
+	return res, rp, err
 }
 
-func (r *Results) writeBranch(c *cache.Cache, b *BranchNodes, outDir string) error {
-	dir := filepath.Join(outDir, b.Branch.Dir())
+// table is one CSV file: its name, header and columns.
+type table struct {
+	name   string
+	header []string
+	cols   [][]float64
+}
+
+// col returns the column with the given header, or nil.
+func (t *table) col(name string) []float64 {
+	for i, h := range t.header {
+		if h == name {
+			return t.cols[i]
+		}
+	}
+	return nil
+}
+
+func (t *table) add(name string, c []float64) {
+	t.header = append(t.header, name)
+	t.cols = append(t.cols, c)
+}
+
+// branchTables returns the CSV tables of one branch; the CSV files and the
+// figures are both made from them.
+func (r *Results) branchTables(b *BranchNodes) map[string]*table {
+	out := map[string]*table{}
 	ex := r.Exact[b]
 	if s := r.Stitch[b]; s != nil {
 		ms := make([]float64, len(s.M))
 		for i, m := range s.M {
 			ms[i] = float64(m)
 		}
-		header := []string{"M", "ln_ratio", "ln_ratio_err", "tau_int"}
-		cols := [][]float64{ms, s.LnRatio, s.LnRatioErr, s.Tau}
+		t := &table{name: "ratios.csv"}
+		t.add("M", ms)
+		t.add("ln_ratio", s.LnRatio)
+		t.add("ln_ratio_err", s.LnRatioErr)
+		t.add("tau_int", s.Tau)
 		if ex != nil {
 			e := make([]float64, len(s.M))
 			for i, m := range s.M {
 				e[i] = ex.LnRho[(m+s.N)/2] - ex.LnRho[(m-2+s.N)/2]
 			}
-			header = append(header, "ln_ratio_exact")
-			cols = append(cols, e)
+			t.add("ln_ratio_exact", e)
 		}
-		if err := writeFileAtomic(filepath.Join(dir, "ratios.csv"), csvTable(header, cols)); err != nil {
-			return err
-		}
+		out["ratios"] = t
 		all := make([]float64, s.N+1)
 		for k := range all {
 			all[k] = float64(2*k - s.N)
 		}
-		header = []string{"M", "ln_rho", "ln_rho_err"}
-		cols = [][]float64{all, s.LnRho, s.LnRhoErr}
+		d := &table{name: "density.csv"}
+		d.add("M", all)
+		d.add("ln_rho", s.LnRho)
+		d.add("ln_rho_err", s.LnRhoErr)
 		if ex != nil {
-			header = append(header, "ln_rho_exact")
-			cols = append(cols, ex.LnRho)
+			d.add("ln_rho_exact", ex.LnRho)
 		}
-		if err := writeFileAtomic(filepath.Join(dir, "density.csv"), csvTable(header, cols)); err != nil {
-			return err
-		}
+		out["density"] = d
 	}
-	if t := r.Transform[b]; t != nil {
-		header := []string{"theta", "sign", "sign_err", "im_m", "im_m_err", "delta_f", "delta_f_err"}
-		cols := [][]float64{t.Theta, stages.Floats(t.Sign), stages.Floats(t.SignErr), stages.Floats(t.ImM),
-			stages.Floats(t.ImMErr), stages.Floats(t.DeltaF), stages.Floats(t.DeltaFErr)}
-		if t.HasExact {
-			header = append(header, "sign_exact", "im_m_exact")
-			cols = append(cols, stages.Floats(t.SignExact), stages.Floats(t.ImMExact))
+	if tr := r.Transform[b]; tr != nil {
+		t := &table{name: "transform.csv"}
+		t.add("theta", tr.Theta)
+		t.add("sign", stages.Floats(tr.Sign))
+		t.add("sign_err", stages.Floats(tr.SignErr))
+		t.add("im_m", stages.Floats(tr.ImM))
+		t.add("im_m_err", stages.Floats(tr.ImMErr))
+		t.add("delta_f", stages.Floats(tr.DeltaF))
+		t.add("delta_f_err", stages.Floats(tr.DeltaFErr))
+		if tr.HasExact {
+			t.add("sign_exact", stages.Floats(tr.SignExact))
+			t.add("im_m_exact", stages.Floats(tr.ImMExact))
 		}
-		if err := writeFileAtomic(filepath.Join(dir, "transform.csv"), csvTable(header, cols)); err != nil {
-			return err
+		out["transform"] = t
+	}
+	return out
+}
+
+func (r *Results) writeBranch(c *cache.Cache, b *BranchNodes, outDir string) error {
+	dir := filepath.Join(outDir, b.Branch.Dir())
+	tables := r.branchTables(b)
+	for _, key := range []string{"ratios", "density", "transform"} {
+		if t := tables[key]; t != nil {
+			if err := writeFileAtomic(filepath.Join(dir, t.name), csvTable(t.header, t.cols)); err != nil {
+				return err
+			}
 		}
 	}
 	return writeSamples(c, b, r.Plan.Study, filepath.Join(dir, "samples"))

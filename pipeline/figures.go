@@ -1,0 +1,245 @@
+package pipeline
+
+import (
+	"fmt"
+	"math"
+	"os"
+	"path/filepath"
+	"sort"
+
+	"strata/pipeline/report"
+	"strata/stages"
+)
+
+// sizeColor gives each size the same colour in every figure.
+func sizeColor(st *Study, l int) int {
+	sizes := append([]int(nil), st.Model.Sizes...)
+	sort.Ints(sizes)
+	return sort.SearchInts(sizes, l)
+}
+
+const thetaLabel = "θ = Im h  (h = βH, dimensionless)"
+
+func nanTo(x stages.NullableFloat) float64 { return float64(x) }
+
+func abs(x []float64) []float64 {
+	out := make([]float64, len(x))
+	for i, v := range x {
+		out[i] = math.Abs(v)
+	}
+	return out
+}
+
+// branchFigures builds the four figures of a branch from its tables.
+func (r *Results) branchFigures(b *BranchNodes, tables map[string]*table) []report.Figure {
+	st := r.Plan.Study
+	c := sizeColor(st, b.Branch.L)
+	tag := fmt.Sprintf("L=%d, β=%s", b.Branch.L, stages.F(b.Branch.Beta))
+	var figs []report.Figure
+	if d := tables["density"]; d != nil {
+		main := report.Panel{Title: "density of states, " + tag, XLabel: "M (total magnetization)", YLabel: "ln ρ(M)",
+			Series: []report.Series{{Label: "Monte Carlo", Kind: report.Points, X: d.col("M"), Y: d.col("ln_rho"), Err: d.col("ln_rho_err"), Color: c}}}
+		f := report.Figure{Name: b.Branch.Dir() + "_density"}
+		if ex := d.col("ln_rho_exact"); ex != nil {
+			main.Series = append(main.Series, report.Series{Label: "exact", Kind: report.Dashed, X: d.col("M"), Y: ex, Color: 6, Exact: true})
+			mc, er := d.col("ln_rho"), d.col("ln_rho_err")
+			pull := make([]float64, len(mc))
+			for i := range mc {
+				pull[i] = math.NaN()
+				if er[i] > 0 {
+					pull[i] = (mc[i] - ex[i]) / er[i]
+				}
+			}
+			n := float64(b.N)
+			f.Panels = []report.Panel{main, {XLabel: "M", YLabel: "pull (MC − exact)/σ", YMin: -4, YMax: 4, XMin: -n, XMax: n,
+				Series: []report.Series{{Kind: report.Points, X: d.col("M"), Y: pull, Color: c}}}}
+		} else {
+			f.Panels = []report.Panel{main}
+		}
+		figs = append(figs, f)
+	}
+	if q := tables["ratios"]; q != nil {
+		figs = append(figs, report.Figure{Name: b.Branch.Dir() + "_ratio_error", Panels: []report.Panel{{
+			Title: "relative error of r(M) = ρ(M)/ρ(M−2), " + tag, XLabel: "M", YLabel: "σ(ln r) = σ_r / r", LogY: true,
+			Series: []report.Series{{Label: tag, Kind: report.Points, X: q.col("M"), Y: q.col("ln_ratio_err"), Color: c}}}}})
+	}
+	if t := tables["transform"]; t != nil {
+		tr := r.Transform[b]
+		sign := report.Panel{Title: "average sign, " + tag, XLabel: thetaLabel, YLabel: "|sign(θ)| = |Z(β,iθ)/Z(β,0)|", LogY: true,
+			Series: []report.Series{{Label: "Monte Carlo ± σ", Kind: report.Band, X: t.col("theta"), Y: abs(t.col("sign")), Err: t.col("sign_err"), Color: c}}}
+		imm := report.Panel{Title: "imaginary magnetization per site, " + tag, XLabel: thetaLabel, YLabel: "Im m(θ) = Im<M>/N",
+			Series: []report.Series{{Label: "Monte Carlo ± σ", Kind: report.Band, X: t.col("theta"), Y: t.col("im_m"), Err: t.col("im_m_err"), Color: c}}}
+		if ex := t.col("sign_exact"); ex != nil {
+			sign.Series = append(sign.Series, report.Series{Label: "exact", Kind: report.Dashed, X: t.col("theta"), Y: abs(ex), Color: 6, Exact: true})
+			imm.Series = append(imm.Series, report.Series{Label: "exact", Kind: report.Dashed, X: t.col("theta"), Y: t.col("im_m_exact"), Color: 6, Exact: true})
+		}
+		sign.Marks = append(sign.Marks, report.Mark{Label: "reach", X: nanTo(tr.Reach), Color: c})
+		// Im m diverges at the zero: show the range up to 3× its value at the bracket
+		ymax := math.NaN()
+		if tr.FirstZero != nil {
+			imm.Marks = append(imm.Marks, report.Mark{Label: "first zero", X: tr.FirstZero.Value, Color: c})
+			th, im := t.col("theta"), t.col("im_m")
+			for i := range th {
+				if th[i] <= float64(tr.ZeroBracket[0]) {
+					ymax = 2 * math.Abs(im[i])
+				}
+			}
+		}
+		if ez := nanTo(tr.ExactFirstZero); !math.IsNaN(ez) {
+			imm.Marks = append(imm.Marks, report.Mark{Label: "exact zero", X: ez, Color: 6})
+		}
+		if !math.IsNaN(ymax) && ymax > 0 {
+			imm.YMin, imm.YMax = -ymax, ymax
+		}
+		figs = append(figs, report.Figure{Name: b.Branch.Dir() + "_sign", Panels: []report.Panel{sign}},
+			report.Figure{Name: b.Branch.Dir() + "_im_m", Panels: []report.Panel{imm}})
+	}
+	return figs
+}
+
+// studyFigures builds the per-β scaling figures and the reach comparison.
+func (r *Results) studyFigures() []report.Figure {
+	st := r.Plan.Study
+	var figs []report.Figure
+	for _, sn := range r.Plan.Scaling {
+		sc := r.Scaling[sn]
+		if sc == nil {
+			continue
+		}
+		y := 2.0
+		if sc.Exponent != nil {
+			y = sc.Exponent.Value
+		}
+		p := report.Panel{Title: fmt.Sprintf("first zero against L^−y, β=%s (y = %.3g)", stages.F(sc.Beta), y),
+			XLabel: "L^−y", YLabel: "θ₁(L)", LegendLeft: true}
+		for _, pt := range sc.Points {
+			x := math.Pow(float64(pt.L), -y)
+			if pt.Theta1 != nil {
+				p.Series = append(p.Series, report.Series{Label: fmt.Sprintf("L=%d", pt.L), Kind: report.Points,
+					X: []float64{x}, Y: []float64{*pt.Theta1}, Err: []float64{*pt.Theta1Err}, Color: sizeColor(st, pt.L)})
+			}
+		}
+		var ex, ey []float64
+		for _, pt := range sc.Points {
+			if pt.Theta1Exact != nil {
+				ex = append(ex, math.Pow(float64(pt.L), -y))
+				ey = append(ey, *pt.Theta1Exact)
+			}
+		}
+		if len(ex) > 0 {
+			p.Series = append(p.Series, report.Series{Label: "exact zeros", Kind: report.Dashed, X: ex, Y: ey, Color: 6, Exact: true})
+		}
+		if sc.ThetaC != nil {
+			xmax := 0.0
+			for _, pt := range sc.Points {
+				xmax = math.Max(xmax, math.Pow(float64(pt.L), -y))
+			}
+			xs := []float64{0, xmax / 2, xmax}
+			ys := make([]float64, 3)
+			for i, x := range xs {
+				ys[i] = sc.ThetaC.Value + sc.Amplitude.Value*x
+			}
+			p.Series = append(p.Series, report.Series{Label: fmt.Sprintf("fit, θ_c = %.5g ± %.2g", sc.ThetaC.Value, sc.ThetaC.Error),
+				Kind: report.Line, X: xs, Y: ys, Color: 6})
+			if sc.ExactThetaC != nil {
+				p.Series = append(p.Series, report.Series{Label: "exact θ_c", Kind: report.Points,
+					X: []float64{0}, Y: []float64{*sc.ExactThetaC}, Color: 3})
+			}
+		}
+		figs = append(figs, report.Figure{Name: "scaling_beta" + stages.F(sc.Beta), Panels: []report.Panel{p}})
+	}
+	reach := report.Panel{Title: "average sign and reach of every size", XLabel: thetaLabel, YLabel: "|sign(θ)|", LogY: true}
+	for _, b := range r.Plan.Branches {
+		tr := r.Transform[b]
+		if tr == nil {
+			continue
+		}
+		c := sizeColor(st, b.Branch.L)
+		label := fmt.Sprintf("L=%d β=%s", b.Branch.L, stages.F(b.Branch.Beta))
+		reach.Series = append(reach.Series, report.Series{Label: label, Kind: report.Line, X: tr.Theta, Y: abs(stages.Floats(tr.Sign)), Color: c})
+		reach.Marks = append(reach.Marks, report.Mark{X: nanTo(tr.Reach), Color: c})
+	}
+	if len(reach.Series) > 0 {
+		figs = append(figs, report.Figure{Name: "reach", Panels: []report.Panel{reach}})
+	}
+	return figs
+}
+
+// writeFigures renders every figure as PNG and SVG into outDir/figures and
+// returns them with their SVG bytes for the report.
+func (r *Results) writeFigures(outDir string) ([]report.Rendered, error) {
+	var figs []report.Figure
+	for _, b := range r.Plan.Branches {
+		figs = append(figs, r.branchFigures(b, r.branchTables(b))...)
+	}
+	figs = append(figs, r.studyFigures()...)
+	dir := filepath.Join(outDir, "figures")
+	if err := os.MkdirAll(dir, 0o777); err != nil {
+		return nil, err
+	}
+	var out []report.Rendered
+	for i := range figs {
+		svg, err := figs[i].Render("svg")
+		if err != nil {
+			return nil, err
+		}
+		png, err := figs[i].Render("png")
+		if err != nil {
+			return nil, err
+		}
+		if err := writeFileAtomic(filepath.Join(dir, figs[i].Name+".svg"), svg); err != nil {
+			return nil, err
+		}
+		if err := writeFileAtomic(filepath.Join(dir, figs[i].Name+".png"), png); err != nil {
+			return nil, err
+		}
+		out = append(out, report.Rendered{Name: figs[i].Name, SVG: svg})
+	}
+	return out, nil
+}
+
+// writeReport writes figures and report.html.
+func (r *Results) writeReport(outDir string, man Manifest, studyText string) (string, error) {
+	figs, err := r.writeFigures(outDir)
+	if err != nil {
+		return "", err
+	}
+	s := r.BuildSummary()
+	p := report.Page{Name: s.Name, Tool: man.Tool, Version: man.Version, StudyHash: man.StudyHash.String(),
+		StudyText: studyText, Dimension: s.Dimension, Figures: figs}
+	dash := func(x *float64, f string) string {
+		if x == nil {
+			return "—"
+		}
+		return fmt.Sprintf(f, *x)
+	}
+	for _, b := range s.Branches {
+		row := report.BranchRow{Dir: b.Dir, Size: fmt.Sprint(b.Size), Beta: stages.F(b.Beta), FirstZero: "not resolved",
+			Exact: dash(b.ExactFirstZero, "%.6g"), Reach: dash(b.Reach, "%.4g")}
+		if b.FirstZero != nil {
+			row.FirstZero = fmt.Sprintf("%.6g ± %.2g", b.FirstZero.Value, b.FirstZero.Error)
+		}
+		if b.ReachIsLowerBound {
+			row.Reach = "≥ " + row.Reach
+		}
+		p.Branches = append(p.Branches, row)
+	}
+	for _, sc := range s.Scaling {
+		row := report.ScalingRow{Beta: stages.F(sc.Beta), ThetaC: "—", Exponent: "—", Chi2: dash(sc.Chi2Dof, "%.3g"),
+			Sizes: fmt.Sprint(sc.Sizes), Exact: dash(sc.ExactThetaC, "%.6g"), Note: sc.Note}
+		if sc.ThetaC != nil {
+			row.ThetaC = fmt.Sprintf("%.6g ± %.2g", sc.ThetaC.Value, sc.ThetaC.Error)
+			row.Exponent = fmt.Sprintf("%.4g ± %.2g", sc.Exponent.Value, sc.Exponent.Error)
+		}
+		p.Scaling = append(p.Scaling, row)
+	}
+	for _, n := range man.Nodes {
+		p.Nodes = append(p.Nodes, report.NodeRow{Stage: n.Stage, Branch: n.Branch, Label: n.Label, Key: n.Key.Short(), Status: n.Status})
+	}
+	html, err := report.HTML(p)
+	if err != nil {
+		return "", err
+	}
+	path := filepath.Join(outDir, "report.html")
+	return path, writeFileAtomic(path, html)
+}
