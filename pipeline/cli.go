@@ -142,7 +142,7 @@ func (e *env) studyCommand(cmd string, args []string) int {
 		fs.StringVar(&f.junit, "junit", "", "also write the outcomes as JUnit XML to this file")
 	}
 	if cmd == "run" || cmd == "plan" {
-		fs.StringVar(&f.stages, "stages", "", "comma-separated stages to run, with what they need (sample,ratios,stitch,exact,transform,scaling)")
+		fs.StringVar(&f.stages, "stages", "", "comma-separated stages to run, with what they need (sample,ratios,stitch,exact,fit,transform,scaling)")
 		fs.StringVar(&f.shard, "shard", "", "i/K: run only the sample shards assigned to task i of K (with --stages sample)")
 	}
 	if cmd == "plan" {
@@ -183,7 +183,7 @@ func (e *env) studyCommand(cmd string, args []string) int {
 	if f.stages != "" {
 		runner.Only = map[string]bool{}
 		valid := map[string]bool{stages.SampleStage: true, stages.RatiosStage: true, stages.StitchStage: true,
-			stages.ExactStage: true, stages.TransformStage: true, stages.ScalingStage: true}
+			stages.ExactStage: true, stages.TransformStage: true, stages.ScalingStage: true, stages.FitStage: true}
 		for _, s := range strings.Split(f.stages, ",") {
 			s = strings.TrimSpace(s)
 			if !valid[s] {

@@ -93,6 +93,20 @@ func (r *Results) branchFigures(b *BranchNodes, tables map[string]*table) []repo
 		}
 		figs = append(figs, report.Figure{Name: b.Branch.Dir() + "_sign", Panels: []report.Panel{sign}},
 			report.Figure{Name: b.Branch.Dir() + "_im_m", Panels: []report.Panel{imm}})
+		if len(tr.Fits) > 0 {
+			fp := report.Panel{Title: "raw and smoothed Im m, " + tag, XLabel: thetaLabel, YLabel: "Im m(θ)", YMin: imm.YMin, YMax: imm.YMax,
+				Series: []report.Series{{Label: "raw ± σ", Kind: report.Band, X: t.col("theta"), Y: t.col("im_m"), Err: t.col("im_m_err"), Color: c}}}
+			for i, f := range tr.Fits {
+				fc := i + 1
+				if fc >= c {
+					fc++ // keep the raw colour distinct
+				}
+				fp.Series = append(fp.Series, report.Series{Label: fmt.Sprintf("fit degree %d", f.Degree), Kind: report.Dashed,
+					X: t.col("theta"), Y: t.col(fmt.Sprintf("im_m_fit%d", f.Degree)), Color: fc})
+				fp.Marks = append(fp.Marks, report.Mark{Label: fmt.Sprintf("bias onset, degree %d", f.Degree), X: nanTo(f.BiasOnset), Color: fc})
+			}
+			figs = append(figs, report.Figure{Name: b.Branch.Dir() + "_fit", Panels: []report.Panel{fp}})
+		}
 	}
 	return figs
 }

@@ -81,6 +81,7 @@ type BranchNodes struct {
 	Ratios    *Node
 	Stitch    *Node
 	Exact     *Node // nil when no exact reference exists
+	Fit       *Node // nil unless [fit] enabled
 	Transform *Node
 }
 
@@ -156,14 +157,25 @@ func BuildPlan(st *Study) *Plan {
 			bn.Exact = newNode(stages.Exact(d, b.L, b.Beta), dir, "", ein...)
 			tin = append(tin, bn.Exact)
 		}
-		bn.Transform = newNode(stages.Transform(tp), dir, "", tin...)
+		btp := tp
+		btp.HasExact = bn.Exact != nil
+		if st.Fit.Enabled {
+			bn.Fit = newNode(stages.Fit(st.Fit.Target, st.Fit.Degrees), dir, "", bn.Stitch)
+			tin = append(tin, bn.Fit)
+			btp.HasFit = true
+		}
+		bn.Transform = newNode(stages.Transform(btp), dir, "", tin...)
 		p.Branches = append(p.Branches, bn)
 		byBeta[b.Beta] = append(byBeta[b.Beta], bn)
 		p.Nodes = append(p.Nodes, bn.Samples...)
 		if bn.Exact != nil {
 			p.Nodes = append(p.Nodes, bn.Exact)
 		}
-		p.Nodes = append(p.Nodes, bn.Ratios, bn.Stitch, bn.Transform)
+		p.Nodes = append(p.Nodes, bn.Ratios, bn.Stitch)
+		if bn.Fit != nil {
+			p.Nodes = append(p.Nodes, bn.Fit)
+		}
+		p.Nodes = append(p.Nodes, bn.Transform)
 	}
 	p.addScaling(st, byBeta)
 	sort.SliceStable(p.Nodes, func(i, j int) bool { return p.Nodes[i].level < p.Nodes[j].level })

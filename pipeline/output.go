@@ -45,7 +45,17 @@ type BranchSummary struct {
 	Reach             *float64       `json:"reach"`
 	ReachIsLowerBound bool           `json:"reach_is_lower_bound"`
 	ExactFirstZero    *float64       `json:"exact_first_zero"`
+	Fit               []FitSummary   `json:"fit,omitempty"`
 	Warnings          []string       `json:"warnings,omitempty"`
+}
+
+// FitSummary is one smoothing degree of a branch.
+type FitSummary struct {
+	Degree    int      `json:"degree"`
+	Chi2Dof   *float64 `json:"chi2_dof"`
+	AIC       float64  `json:"aic"`
+	BiasOnset *float64 `json:"bias_onset"` // θ beyond which fitted and raw Im m differ by > 2σ
+	FirstZero *float64 `json:"first_zero"`
 }
 
 // Summary is summary.json: the headline results.
@@ -163,6 +173,10 @@ func (r *Results) BuildSummary() Summary {
 			bs.Reach = ptr(float64(t.Reach))
 			bs.ReachIsLowerBound = t.ReachLowerBound
 			bs.ExactFirstZero = ptr(float64(t.ExactFirstZero))
+			for _, f := range t.Fits {
+				bs.Fit = append(bs.Fit, FitSummary{Degree: f.Degree, Chi2Dof: ptr(float64(f.Chi2Dof)), AIC: f.AIC,
+					BiasOnset: ptr(float64(f.BiasOnset)), FirstZero: ptr(float64(f.FirstZero))})
+			}
 		} else if e := r.Exact[b]; e != nil {
 			bs.ExactFirstZero = ptr(float64(e.FirstZero))
 		}
@@ -328,6 +342,10 @@ func (r *Results) branchTables(b *BranchNodes) map[string]*table {
 		if tr.HasExact {
 			t.add("sign_exact", stages.Floats(tr.SignExact))
 			t.add("im_m_exact", stages.Floats(tr.ImMExact))
+		}
+		for _, f := range tr.Fits {
+			t.add(fmt.Sprintf("sign_fit%d", f.Degree), stages.Floats(f.Sign))
+			t.add(fmt.Sprintf("im_m_fit%d", f.Degree), stages.Floats(f.ImM))
 		}
 		out["transform"] = t
 	}

@@ -417,3 +417,33 @@ func TestShowExactBudgetCommands(t *testing.T) {
 		t.Errorf("exact beyond the limits: exit %d, want 2", code)
 	}
 }
+
+func TestFitStageOutputs(t *testing.T) {
+	dir := t.TempDir()
+	study := writeStudy(t, dir, "tiny.toml", tinyStudy)
+	out := filepath.Join(dir, "out")
+	code, _, e := runCLI(t, "run", study, "--out", out, "--set", "fit.enabled=true", "--set", "fit.degrees=[2,4]")
+	if code != 0 {
+		t.Fatal(e)
+	}
+	b, _ := os.ReadFile(filepath.Join(out, "L8_beta0.4", "transform.csv"))
+	if !strings.Contains(strings.SplitN(string(b), "\n", 2)[0], ",sign_fit2,im_m_fit2,sign_fit4,im_m_fit4") {
+		t.Errorf("transform.csv header: %.200s", b)
+	}
+	s := readSummary(t, out)
+	if len(s.Branches[1].Fit) != 2 || s.Branches[1].Fit[0].Degree != 2 || s.Branches[1].Fit[0].Chi2Dof == nil {
+		t.Errorf("summary fit block: %+v", s.Branches[1].Fit)
+	}
+	if _, err := os.Stat(filepath.Join(out, "figures", "L8_beta0.4_fit.svg")); err != nil {
+		t.Error(err)
+	}
+	// the fit is optional: turning it off leaves sampling, ratios and stitch cached
+	code, _, e = runCLI(t, "run", study, "--out", out)
+	if code != 0 {
+		t.Fatal(e)
+	}
+	st := statusByStage(readManifest(t, out))
+	if st["stitch"]["computed"] != 0 || st["fit"] != nil {
+		t.Errorf("after disabling the fit: %v", st)
+	}
+}

@@ -29,6 +29,7 @@ type Study struct {
 	Exact     ExactSpec     `toml:"exact" json:"exact"`
 	Transform TransformSpec `toml:"transform" json:"transform"`
 	Scaling   ScalingSpec   `toml:"scaling" json:"scaling"`
+	Fit       FitSpec       `toml:"fit" json:"fit"`
 	Expect    []ExpectSpec  `toml:"expect" json:"expect,omitempty"`
 }
 
@@ -82,6 +83,13 @@ type ScalingSpec struct {
 	MinSize    int  `toml:"min_size" json:"min_size"`
 }
 
+// FitSpec configures the optional smoothing of ln ρ by polynomials.
+type FitSpec struct {
+	Enabled bool   `toml:"enabled" json:"enabled"`
+	Target  string `toml:"target" json:"target"`   // "ln_rho" or "ln_ratio"
+	Degrees []int  `toml:"degrees" json:"degrees"` // scanned in one run
+}
+
 // ExpectSpec is one physics regression expectation.
 type ExpectSpec struct {
 	Branch    string   `toml:"branch" json:"branch,omitempty"`
@@ -107,6 +115,7 @@ func Defaults() Study {
 		Exact:     ExactSpec{Enabled: true, MaxBits: 1 << 14},
 		Transform: TransformSpec{ThetaMin: 0, ThetaMax: 0.5, ThetaPoints: 101, ReachFactor: 2, ZeroFraction: 0.95},
 		Scaling:   ScalingSpec{Exponent: "free"},
+		Fit:       FitSpec{Target: "ln_rho", Degrees: []int{2, 4, 6, 8}},
 	}
 }
 
@@ -324,6 +333,17 @@ func (st *Study) validate(p *Problems) {
 	}
 	if st.Scaling.MinSize < 0 {
 		p.add("scaling.min_size", "%d must be ≥ 0", st.Scaling.MinSize)
+	}
+	if st.Fit.Target != "ln_rho" && st.Fit.Target != "ln_ratio" {
+		p.add("fit.target", "%q must be \"ln_rho\" or \"ln_ratio\"", st.Fit.Target)
+	}
+	if st.Fit.Enabled && len(st.Fit.Degrees) == 0 {
+		p.add("fit.degrees", "give at least one degree")
+	}
+	for _, d := range st.Fit.Degrees {
+		if d < 1 || d > 64 {
+			p.add("fit.degrees", "%d must be in 1..64", d)
+		}
 	}
 	st.validateExpect(p)
 }

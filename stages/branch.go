@@ -236,6 +236,9 @@ type TransformParams struct {
 	ReachFactor        float64
 	ZeroFraction       float64
 	MaxBits            int
+	// HasExact and HasFit say which optional inputs follow the stitch
+	// output: the exact reference, then the fit.
+	HasExact, HasFit bool
 }
 
 // Grid returns the θ grid.
@@ -269,18 +272,19 @@ type TransformOut struct {
 	ReachLowerBound     bool
 	ExactFirstZero      NullableFloat
 	HasExact            bool
+	Fits                []FitCurve `json:",omitempty"`
 }
 
 // Transform returns the task computing sign(θ), Im m(θ), Δf(θ) with
 // replica errors, the first zero and the reach. inputs[0] is the stitch
-// output; inputs[1], when present, the exact reference.
+// output; then the exact reference if p.HasExact, then the fit if p.HasFit.
 func Transform(p TransformParams) Task {
 	return Task{
 		Stage: TransformStage, Version: transformVersion,
 		Params: []Param{
 			{"max_bits", I(p.MaxBits)}, {"reach_factor", F(p.ReachFactor)},
 			{"theta_max", F(p.ThetaMax)}, {"theta_min", F(p.ThetaMin)}, {"theta_points", I(p.Points)},
-			{"zero_fraction", F(p.ZeroFraction)},
+			{"zero_fraction", F(p.ZeroFraction)}, {"with_exact", fmt.Sprint(p.HasExact)}, {"with_fit", fmt.Sprint(p.HasFit)},
 		},
 		Run: func(inputs [][]byte) ([]byte, error) {
 			var s StitchOut
@@ -305,14 +309,23 @@ func Transform(p TransformParams) Task {
 			}
 			reach, lb := transform.Reach(c, p.ReachFactor, lo, hi)
 			out.Reach, out.ReachLowerBound = NullableFloat(reach), lb
-			if len(inputs) > 1 {
+			next := 1
+			if p.HasExact {
 				var e ExactOut
-				if err := decode(inputs[1], &e); err != nil {
+				if err := decode(inputs[next], &e); err != nil {
 					return nil, err
 				}
+				next++
 				out.HasExact = true
 				out.ExactFirstZero = e.FirstZero
 				out.SignExact, out.ImMExact = ExactOnGrid(&e, grid, p.MaxBits)
+			}
+			if p.HasFit {
+				var f FitOut
+				if err := decode(inputs[next], &f); err != nil {
+					return nil, err
+				}
+				out.Fits = fitCurves(&f, tab, c, s.N)
 			}
 			return encode(out)
 		},

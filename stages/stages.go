@@ -33,16 +33,18 @@ const (
 	ExactStage     = "exact"
 	TransformStage = "transform"
 	ScalingStage   = "scaling"
+	FitStage       = "fit"
 )
 
 // Code versions: bump when a stage's output for the same inputs changes.
 const (
 	sampleVersion    = 1
 	ratiosVersion    = 1
-	stitchVersion    = 1
+	stitchVersion    = 2
 	exactVersion     = 1
-	transformVersion = 1
-	scalingVersion   = 1
+	transformVersion = 2
+	scalingVersion   = 2
+	fitVersion       = 1
 )
 
 // Param is one canonical parameter: a name and its value as text (floats
