@@ -40,6 +40,7 @@ Commands:
   show    STUDY.toml   print the headline results of a finished run
   check   STUDY.toml   run, then test the study's [[expect]] entries (and a baseline)
   budget  STUDY.toml   predict the sweeps needed to push the reach to a given θ
+  slurm   STUDY.toml   run the study on a Slurm cluster (job array over a shared cache)
   exact                print exact references for one lattice
   cache   verify|ls|gc manage the cache
 
@@ -69,6 +70,8 @@ func Main(args []string, stdout, stderr io.Writer) int {
 		return e.exactCommand(args[1:])
 	case "budget":
 		return e.budgetCommand(args[1:])
+	case "slurm":
+		return e.slurmCommand(args[1:])
 	case "cache":
 		return e.cacheCommand(args[1:])
 	}
@@ -200,6 +203,11 @@ func (e *env) studyCommand(cmd string, args []string) int {
 			return ExitUsage
 		}
 		runner.ShardI, runner.ShardK = i, k
+		// fault injection for the cluster tests: this task fails at once
+		if os.Getenv("STRATA_FAIL_SHARD") == strconv.Itoa(i) {
+			fmt.Fprintf(e.stderr, "strata %s: shard %d/%d: failure injected by STRATA_FAIL_SHARD\n", cmd, i, k)
+			return ExitFail
+		}
 	}
 	switch cmd {
 	case "plan":
