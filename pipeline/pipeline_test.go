@@ -248,12 +248,13 @@ func TestCorruptObjectIsRecomputed(t *testing.T) {
 	}
 }
 
-// outputsOf returns every output file except the manifest (provenance).
+// outputsOf returns every output file except those that carry provenance
+// (the manifest and the report, which shows each node's status).
 func outputsOf(t *testing.T, out string) map[string][]byte {
 	t.Helper()
 	files := map[string][]byte{}
 	filepath.Walk(out, func(p string, info os.FileInfo, err error) error {
-		if err != nil || info.IsDir() || filepath.Base(p) == "manifest.json" {
+		if err != nil || info.IsDir() || filepath.Base(p) == "manifest.json" || filepath.Base(p) == "report.html" {
 			return err
 		}
 		b, err := os.ReadFile(p)
