@@ -81,14 +81,15 @@ slurm_down() {
   for f in slurmd slurmctld munged; do
     [ -f "$SLURM_DIR/run/$f.pid" ] && pids+=("$(cat "$SLURM_DIR/run/$f.pid")")
   done
-  for p in "${pids[@]}"; do kill -TERM "$p" 2>/dev/null; done
+  for p in "${pids[@]}"; do kill -TERM "$p" 2>/dev/null || true; done
   for _ in $(seq 1 20); do
     local alive=0
     for p in "${pids[@]}"; do kill -0 "$p" 2>/dev/null && alive=1; done
     [ "$alive" = 0 ] && break
     sleep 0.5
   done
-  for p in "${pids[@]}"; do kill -KILL "$p" 2>/dev/null; done
+  for p in "${pids[@]}"; do kill -KILL "$p" 2>/dev/null || true; done
   rm -rf "$SLURM_DIR"
   SLURM_DIR=
+  return 0
 }
