@@ -174,8 +174,13 @@ func (c *Cache) Has(action Key) bool {
 	return err == nil
 }
 
-// writeAtomic writes data to path via a temp file in the same folder.
-func writeAtomic(path string, data []byte) error {
+// writeAtomic writes a read-only cache file.
+func writeAtomic(path string, data []byte) error { return WriteFile(path, data, 0o444) }
+
+// WriteFile writes data to path atomically: a temp file in the same folder
+// is written, synced, given perm and renamed over path, and the folder is
+// synced. Readers see the old file or the new one, never a part.
+func WriteFile(path string, data []byte, perm os.FileMode) error {
 	dir := filepath.Dir(path)
 	if err := os.MkdirAll(dir, 0o777); err != nil {
 		return fmt.Errorf("cache: %w", err)
@@ -193,14 +198,14 @@ func writeAtomic(path string, data []byte) error {
 		werr = cerr
 	}
 	if werr == nil {
-		werr = os.Chmod(tmp, 0o444)
+		werr = os.Chmod(tmp, perm)
 	}
 	if werr == nil {
 		werr = os.Rename(tmp, path)
 	}
 	if werr != nil {
 		os.Remove(tmp)
-		return fmt.Errorf("cache: writing %s: %w", path, werr)
+		return fmt.Errorf("writing %s: %w", path, werr)
 	}
 	if d, err := os.Open(dir); err == nil {
 		_ = d.Sync()

@@ -1,11 +1,8 @@
 package pipeline
 
 import (
-	"errors"
-	"flag"
 	"fmt"
 	"math"
-	"runtime"
 	"text/tabwriter"
 
 	"strata/cache"
@@ -28,31 +25,19 @@ Flags:
 func (e *env) budgetCommand(args []string) int {
 	fs := e.newFlagSet("budget", budgetUsage)
 	var f studyFlags
-	fs.StringVar(&f.cacheDir, "cache", "", "cache directory (default .strata-cache beside the study, or $STRATA_CACHE)")
-	fs.StringVar(&f.outDir, "out", "", "output directory (unused; accepted for symmetry)")
-	fs.Var(&f.sets, "set", "override a study key: dotted.key=value (repeatable)")
-	fs.IntVar(&f.jobs, "jobs", runtime.NumCPU(), "unused; accepted for symmetry")
+	f.register(fs)
 	theta := fs.Float64("theta", math.NaN(), "target θ for the reach")
-	pos, err := parseInterleaved(fs, args)
-	if errors.Is(err, flag.ErrHelp) {
-		fs.SetOutput(e.stdout)
-		fs.Usage()
-		return ExitOK
+	pos, code, done := e.parse(fs, args)
+	if done {
+		return code
 	}
-	if err != nil {
+	if math.IsNaN(*theta) {
+		fmt.Fprintln(e.stderr, "strata budget: --theta X is required")
 		return ExitUsage
 	}
-	if len(pos) != 1 || math.IsNaN(*theta) {
-		fmt.Fprintln(e.stderr, "strata budget: want one study file and --theta X")
-		return ExitUsage
-	}
-	st, err := LoadStudy(pos[0], f.sets)
-	if err != nil {
-		fmt.Fprintln(e.stderr, err)
-		return ExitUsage
-	}
-	if f.cacheDir == "" {
-		f.cacheDir = DefaultCacheDir(pos[0])
+	st, code, ok := e.loadStudy("budget", pos, &f)
+	if !ok {
+		return code
 	}
 	c, err := cache.Open(f.cacheDir)
 	if err != nil {

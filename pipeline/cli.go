@@ -123,6 +123,52 @@ func (e *env) newFlagSet(name, usage string) *flag.FlagSet {
 	return fs
 }
 
+// register adds the flags every study command accepts.
+func (f *studyFlags) register(fs *flag.FlagSet) {
+	fs.StringVar(&f.cacheDir, "cache", "", "cache directory (default .strata-cache beside the study, or $STRATA_CACHE)")
+	fs.StringVar(&f.outDir, "out", "", "output directory (default out/<name>)")
+	fs.Var(&f.sets, "set", "override a study key: dotted.key=value in TOML syntax (repeatable)")
+	fs.IntVar(&f.jobs, "jobs", runtime.NumCPU(), "number of concurrent workers")
+}
+
+// parse parses interleaved flags; done reports that the command should
+// return code at once (help was printed, or the flags were bad).
+func (e *env) parse(fs *flag.FlagSet, args []string) (pos []string, code int, done bool) {
+	fs.SetOutput(io.Discard) // the flag package would print the usage on every error
+	pos, err := parseInterleaved(fs, args)
+	if errors.Is(err, flag.ErrHelp) {
+		fs.SetOutput(e.stdout)
+		fs.Usage()
+		return nil, ExitOK, true
+	}
+	if err != nil {
+		fmt.Fprintf(e.stderr, "strata %s: %v (see 'strata %s --help')\n", fs.Name(), err, fs.Name())
+		return nil, ExitUsage, true
+	}
+	return pos, 0, false
+}
+
+// loadStudy loads the one study named in pos with the flags' overrides
+// and fills in the default cache and output folders.
+func (e *env) loadStudy(cmd string, pos []string, f *studyFlags) (*Study, int, bool) {
+	if len(pos) != 1 {
+		fmt.Fprintf(e.stderr, "strata %s: want exactly one study file, got %d arguments\n", cmd, len(pos))
+		return nil, ExitUsage, false
+	}
+	st, err := LoadStudy(pos[0], f.sets)
+	if err != nil {
+		fmt.Fprintln(e.stderr, err)
+		return nil, ExitUsage, false
+	}
+	if f.cacheDir == "" {
+		f.cacheDir = DefaultCacheDir(pos[0])
+	}
+	if f.outDir == "" {
+		f.outDir = DefaultOutDir(st)
+	}
+	return st, 0, true
+}
+
 var studyUsages = map[string]string{
 	"run":  "Usage: strata run STUDY.toml [flags]\n\nRuns every stale node of the study (reusing cached ones) and writes the output folder.\n\nFlags:\n",
 	"plan": "Usage: strata plan STUDY.toml [flags]\n\nDry run: lists the nodes a run would compute and, for each, which parameter made it stale.\n\nFlags:\n",
@@ -135,10 +181,7 @@ var studyUsages = map[string]string{
 func (e *env) studyCommand(cmd string, args []string) int {
 	fs := e.newFlagSet(cmd, studyUsages[cmd])
 	var f studyFlags
-	fs.StringVar(&f.cacheDir, "cache", "", "cache directory (default .strata-cache beside the study, or $STRATA_CACHE)")
-	fs.StringVar(&f.outDir, "out", "", "output directory (default out/<name>)")
-	fs.Var(&f.sets, "set", "override a study key: dotted.key=value in TOML syntax (repeatable)")
-	fs.IntVar(&f.jobs, "jobs", runtime.NumCPU(), "number of concurrent workers")
+	f.register(fs)
 	if cmd == "check" {
 		fs.StringVar(&f.baseline, "baseline", "", "compare with this stored summary.json")
 		fs.Float64Var(&f.sigma, "sigma", 3, "baseline tolerance in combined standard errors")
@@ -151,31 +194,15 @@ func (e *env) studyCommand(cmd string, args []string) int {
 	if cmd == "plan" {
 		fs.BoolVar(&f.explain, "explain", false, "print the full record behind each node's key")
 	}
-	pos, err := parseInterleaved(fs, args)
-	if errors.Is(err, flag.ErrHelp) {
-		fs.SetOutput(e.stdout)
-		fs.Usage()
-		return ExitOK
+	pos, code, done := e.parse(fs, args)
+	if done {
+		return code
 	}
-	if err != nil {
-		return ExitUsage
-	}
-	if len(pos) != 1 {
-		fmt.Fprintf(e.stderr, "strata %s: want exactly one study file, got %d arguments\n", cmd, len(pos))
-		return ExitUsage
+	st, code, ok := e.loadStudy(cmd, pos, &f)
+	if !ok {
+		return code
 	}
 	path := pos[0]
-	st, err := LoadStudy(path, f.sets)
-	if err != nil {
-		fmt.Fprintln(e.stderr, err)
-		return ExitUsage
-	}
-	if f.cacheDir == "" {
-		f.cacheDir = DefaultCacheDir(path)
-	}
-	if f.outDir == "" {
-		f.outDir = DefaultOutDir(st)
-	}
 	c, err := cache.Open(f.cacheDir)
 	if err != nil {
 		fmt.Fprintln(e.stderr, err)
@@ -438,14 +465,9 @@ func (e *env) cacheCommand(args []string) int {
 	older := fs.String("older-than", "0s", "gc: remove unreached objects only if unused for this long (e.g. 30d, 12h)")
 	var sets multi
 	fs.Var(&sets, "set", "gc: override a study key when resolving the studies (repeatable)")
-	pos, err := parseInterleaved(fs, args[1:])
-	if errors.Is(err, flag.ErrHelp) {
-		fs.SetOutput(e.stdout)
-		fs.Usage()
-		return ExitOK
-	}
-	if err != nil {
-		return ExitUsage
+	pos, code, done := e.parse(fs, args[1:])
+	if done {
+		return code
 	}
 	if *dir == "" {
 		if len(pos) > 0 {

@@ -2,8 +2,6 @@ package pipeline
 
 import (
 	"encoding/json"
-	"errors"
-	"flag"
 	"fmt"
 	"math"
 	"os"
@@ -34,14 +32,9 @@ func (e *env) exactCommand(args []string) int {
 	tmax := fs.Float64("theta-max", 0.5, "largest θ")
 	pts := fs.Int("theta-points", 101, "number of grid points")
 	bits := fs.Int("max-bits", 1<<14, "precision cap of the high-precision sum (bits)")
-	pos, err := parseInterleaved(fs, args)
-	if errors.Is(err, flag.ErrHelp) {
-		fs.SetOutput(e.stdout)
-		fs.Usage()
-		return ExitOK
-	}
-	if err != nil {
-		return ExitUsage
+	pos, code, done := e.parse(fs, args)
+	if done {
+		return code
 	}
 	var probs []string
 	if len(pos) > 0 {

@@ -73,34 +73,8 @@ func ptr(x float64) *float64 {
 	return &x
 }
 
-// writeFileAtomic writes via a temp file and rename in the same folder.
-func writeFileAtomic(path string, data []byte) error {
-	dir := filepath.Dir(path)
-	if err := os.MkdirAll(dir, 0o777); err != nil {
-		return err
-	}
-	f, err := os.CreateTemp(dir, ".tmp-"+filepath.Base(path)+"-*")
-	if err != nil {
-		return err
-	}
-	_, werr := f.Write(data)
-	if werr == nil {
-		werr = f.Sync()
-	}
-	if cerr := f.Close(); werr == nil {
-		werr = cerr
-	}
-	if werr == nil {
-		werr = os.Chmod(f.Name(), 0o644)
-	}
-	if werr == nil {
-		werr = os.Rename(f.Name(), path)
-	}
-	if werr != nil {
-		os.Remove(f.Name())
-	}
-	return werr
-}
+// writeFileAtomic writes an output file atomically (temp file + rename).
+func writeFileAtomic(path string, data []byte) error { return cache.WriteFile(path, data, 0o644) }
 
 func writeJSON(path string, v any) error {
 	b, err := json.MarshalIndent(v, "", "  ")

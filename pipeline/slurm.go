@@ -2,14 +2,11 @@ package pipeline
 
 import (
 	"bytes"
-	"errors"
-	"flag"
 	"fmt"
 	"os"
 	"os/exec"
 	"path/filepath"
 	"regexp"
-	"runtime"
 	"sort"
 	"strconv"
 	"strings"
@@ -45,10 +42,7 @@ type slurmFlags struct {
 func (e *env) slurmCommand(args []string) int {
 	fs := e.newFlagSet("slurm", slurmUsage)
 	var f slurmFlags
-	fs.StringVar(&f.cacheDir, "cache", "", "cache directory on a shared file system (default .strata-cache beside the study, or $STRATA_CACHE)")
-	fs.StringVar(&f.outDir, "out", "", "output directory (default out/<name>)")
-	fs.Var(&f.sets, "set", "override a study key: dotted.key=value (repeatable)")
-	fs.IntVar(&f.jobs, "jobs", runtime.NumCPU(), "workers of the final job when Slurm does not set SLURM_CPUS_PER_TASK")
+	f.register(fs)
 	fs.IntVar(&f.tasks, "tasks", 0, "number of array tasks K")
 	fs.StringVar(&f.partition, "partition", "", "Slurm partition (left out when not given)")
 	fs.StringVar(&f.timeLimit, "time", "", "time limit per job, e.g. 02:00:00 (left out when not given)")
@@ -56,29 +50,17 @@ func (e *env) slurmCommand(args []string) int {
 	fs.Var(&f.sbatchArgs, "sbatch-arg", "extra #SBATCH option, e.g. --mem=2G (repeatable)")
 	fs.BoolVar(&f.dryRun, "dry-run", false, "print the scripts without submitting")
 	fs.BoolVar(&f.wait, "wait", false, "wait for both jobs; exit 1 naming any failed task and its log")
-	pos, err := parseInterleaved(fs, args)
-	if errors.Is(err, flag.ErrHelp) {
-		fs.SetOutput(e.stdout)
-		fs.Usage()
-		return ExitOK
+	pos, code, done := e.parse(fs, args)
+	if done {
+		return code
 	}
-	if err != nil {
+	if f.tasks < 1 {
+		fmt.Fprintln(e.stderr, "strata slurm: --tasks K ≥ 1 is required")
 		return ExitUsage
 	}
-	if len(pos) != 1 || f.tasks < 1 {
-		fmt.Fprintln(e.stderr, "strata slurm: want one study file and --tasks K ≥ 1")
-		return ExitUsage
-	}
-	st, err := LoadStudy(pos[0], f.sets)
-	if err != nil {
-		fmt.Fprintln(e.stderr, err)
-		return ExitUsage
-	}
-	if f.cacheDir == "" {
-		f.cacheDir = DefaultCacheDir(pos[0])
-	}
-	if f.outDir == "" {
-		f.outDir = DefaultOutDir(st)
+	st, code, ok := e.loadStudy("slurm", pos, &f.studyFlags)
+	if !ok {
+		return code
 	}
 	cacheAbs, err1 := filepath.Abs(f.cacheDir)
 	outAbs, err2 := filepath.Abs(f.outDir)
