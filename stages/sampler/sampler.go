@@ -127,16 +127,33 @@ func Sector(c Chain) ([]float64, error) {
 			ia := r.Intn(nu)
 			ib := nu + r.Intn(nd)
 			a, b := sites[ia], sites[ib]
-			na := nbr[int(a)*z : int(a)*z+z]
-			bonds := 0
-			for _, j := range na {
-				if j == b {
-					bonds++
+			// k0 ignores a bond between a and b, which can only lower ΔS;
+			// thr is increasing in k, so one uniform u decides in two steps
+			// and the neighbour list is read only when the bond matters.
+			k0 := int(h[b]) - int(h[a]) + off
+			var u uint64
+			if k0 < off {
+				u = r.Uint64()
+				if u >= thr[k0] {
+					continue
 				}
 			}
-			k := int(h[b]) - int(h[a]) - 2*bonds + off
-			if k < off && r.Uint64() >= thr[k] {
-				continue
+			na := nbr[int(a)*z : int(a)*z+z]
+			if k0 < off+2*z { // a bond could change the decision
+				bonds := 0
+				for _, j := range na {
+					if j == b {
+						bonds++
+					}
+				}
+				if k := k0 - 2*bonds; bonds > 0 && k < off {
+					if k0 >= off {
+						u = r.Uint64()
+					}
+					if u >= thr[k] {
+						continue
+					}
+				}
 			}
 			s[a], s[b] = -1, 1
 			sites[ia], sites[ib] = b, a
