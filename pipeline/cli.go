@@ -1,6 +1,7 @@
 package pipeline
 
 import (
+	"encoding/json"
 	"errors"
 	"flag"
 	"fmt"
@@ -299,7 +300,7 @@ func (e *env) plan(p *Plan, r *Runner, f studyFlags) int {
 	prev := map[string]string{}
 	if b, err := os.ReadFile(filepath.Join(f.outDir, "manifest.json")); err == nil {
 		var m Manifest
-		if jsonUnmarshal(b, &m) == nil {
+		if json.Unmarshal(b, &m) == nil {
 			for _, n := range m.Nodes {
 				prev[n.Stage+"|"+n.Branch+"|"+n.Label] = n.Record
 			}

@@ -4,13 +4,9 @@ import (
 	"encoding/json"
 	"fmt"
 	"math"
-	"os"
-	"path/filepath"
 
 	"strata/stages"
 )
-
-func jsonUnmarshal(b []byte, v any) error { return json.Unmarshal(b, v) }
 
 const exactUsage = `Usage: strata exact --dimension D --size L --beta B [--theta-min X] [--theta-max X] [--theta-points N]
 
@@ -91,23 +87,4 @@ func (e *env) exactCommand(args []string) int {
 	fmt.Fprint(e.stdout, string(csvTable([]string{"theta", "sign_exact", "im_m_exact"},
 		[][]float64{grid, stages.Floats(sign), stages.Floats(imm)})))
 	return ExitOK
-}
-
-func writeScalingCSV(outDir string, v *stages.ScalingOut) error {
-	var ls, th, er, ex []float64
-	val := func(p *float64) float64 {
-		if p == nil {
-			return math.NaN()
-		}
-		return *p
-	}
-	for _, p := range v.Points {
-		ls = append(ls, float64(p.L))
-		th = append(th, val(p.Theta1))
-		er = append(er, val(p.Theta1Err))
-		ex = append(ex, val(p.Theta1Exact))
-	}
-	path := filepath.Join(outDir, "scaling_beta"+stages.F(v.Beta)+".csv")
-	_ = os.MkdirAll(outDir, 0o777)
-	return writeFileAtomic(path, csvTable([]string{"L", "theta1", "theta1_err", "theta1_exact"}, [][]float64{ls, th, er, ex}))
 }

@@ -395,3 +395,22 @@ func sampleColumns(estimator string, d int) []string {
 	}
 	return []string{"fraction of proposals after which the chain was in sector M"}
 }
+
+func writeScalingCSV(outDir string, v *stages.ScalingOut) error {
+	var ls, th, er, ex []float64
+	val := func(p *float64) float64 {
+		if p == nil {
+			return math.NaN()
+		}
+		return *p
+	}
+	for _, p := range v.Points {
+		ls = append(ls, float64(p.L))
+		th = append(th, val(p.Theta1))
+		er = append(er, val(p.Theta1Err))
+		ex = append(ex, val(p.Theta1Exact))
+	}
+	path := filepath.Join(outDir, "scaling_beta"+stages.F(v.Beta)+".csv")
+	_ = os.MkdirAll(outDir, 0o777)
+	return writeFileAtomic(path, csvTable([]string{"L", "theta1", "theta1_err", "theta1_exact"}, [][]float64{ls, th, er, ex}))
+}

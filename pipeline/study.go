@@ -354,16 +354,6 @@ func (st *Study) Chunks() int {
 	return (st.Sample.Sweeps + st.Sample.ChunkSweeps - 1) / st.Sample.ChunkSweeps
 }
 
-// Grid returns the θ grid.
-func (st *Study) Grid() []float64 {
-	t := st.Transform
-	g := make([]float64, t.ThetaPoints)
-	for i := range g {
-		g[i] = t.ThetaMin + (t.ThetaMax-t.ThetaMin)*float64(i)/float64(t.ThetaPoints-1)
-	}
-	return g
-}
-
 // Canonical returns the study as canonical JSON (fixed field order, floats
 // in shortest round-trip form) and its blake3 hash.
 func (st *Study) Canonical() ([]byte, cache.Key) {
