@@ -293,19 +293,25 @@ func TestJobsDoNotChangeResults(t *testing.T) {
 	sameOutputs(t, outputsOf(t, o1), outputsOf(t, o4))
 }
 
+// Two strata processes on one cache at the same time both succeed and
+// produce identical results.
 func TestConcurrentRunsShareCache(t *testing.T) {
 	dir := t.TempDir()
 	study := writeStudy(t, dir, "tiny.toml", tinyStudy)
-	codes := make(chan int, 2)
+	type result struct {
+		code int
+		out  string
+	}
+	done := make(chan result, 2)
 	for _, o := range []string{"a", "b"} {
 		go func(o string) {
-			var so, se bytes.Buffer
-			codes <- Main([]string{"run", study, "--out", filepath.Join(dir, o), "--jobs", "2"}, &so, &se)
+			code, out := strataProcess(t, nil, "run", study, "--out", filepath.Join(dir, o), "--jobs", "2")
+			done <- result{code, out}
 		}(o)
 	}
 	for i := 0; i < 2; i++ {
-		if c := <-codes; c != 0 {
-			t.Fatalf("concurrent run exit %d", c)
+		if r := <-done; r.code != 0 {
+			t.Fatalf("concurrent run exit %d\n%s", r.code, r.out)
 		}
 	}
 	sameOutputs(t, outputsOf(t, filepath.Join(dir, "a")), outputsOf(t, filepath.Join(dir, "b")))

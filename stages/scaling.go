@@ -54,8 +54,10 @@ func fptr(x float64) *float64 {
 
 // Scaling returns the task fitting θ₁(L) = θ_c + a L^{−y} over the
 // transforms of one β (inputs in the order of p.Sizes). Errors come from
-// R parametric replicas of the zeros (each θ₁ drawn from a normal with its
-// error), refitted one by one.
+// refitting replicas: replica j takes the j-th replica root of every size
+// (sizes are independent chains, so their replicas combine freely); when a
+// size has fewer than 2 replica roots, R parametric replicas are drawn
+// instead (each θ₁ from a normal with its error).
 func Scaling(p ScalingParams) Task {
 	exp := "free"
 	if !math.IsNaN(p.Exponent) {
@@ -68,6 +70,7 @@ func Scaling(p ScalingParams) Task {
 		Run: func(inputs [][]byte) ([]byte, error) {
 			out := ScalingOut{Beta: p.Beta, Sizes: []int{}, Points: []ScalingPoint{}}
 			var pts, exactPts []fss.Point
+			var roots [][]float64
 			for i, b := range inputs {
 				var t TransformOut
 				if err := decode(b, &t); err != nil {
@@ -82,11 +85,22 @@ func Scaling(p ScalingParams) Task {
 					continue
 				}
 				pts = append(pts, fss.Point{L: p.Sizes[i], Theta: t.FirstZero.Value, Err: t.FirstZero.Error})
+				roots = append(roots, t.ZeroRoots)
 				if ez := float64(t.ExactFirstZero); !math.IsNaN(ez) {
 					exactPts = append(exactPts, fss.Point{L: p.Sizes[i], Theta: ez, Err: t.FirstZero.Error})
 				}
 			}
-			sort.Slice(pts, func(i, j int) bool { return pts[i].L < pts[j].L })
+			order := make([]int, len(pts))
+			for i := range order {
+				order[i] = i
+			}
+			sort.Slice(order, func(a, b int) bool { return pts[order[a]].L < pts[order[b]].L })
+			sortedPts := make([]fss.Point, len(pts))
+			sortedRoots := make([][]float64, len(pts))
+			for i, k := range order {
+				sortedPts[i], sortedRoots[i] = pts[k], roots[k]
+			}
+			pts, roots = sortedPts, sortedRoots
 			for _, q := range pts {
 				out.Sizes = append(out.Sizes, q.L)
 			}
@@ -111,9 +125,21 @@ func Scaling(p ScalingParams) Task {
 			gen := rng.NewRand(p.Seed)
 			var tc, ys, as []float64
 			rep := make([]fss.Point, len(pts))
-			for r := 0; r < p.Replicas; r++ {
+			nrep := p.Replicas
+			for _, r := range roots {
+				nrep = min(nrep, len(r))
+			}
+			parametric := nrep < 2
+			if parametric {
+				nrep = p.Replicas
+			}
+			for r := 0; r < nrep; r++ {
 				for i, q := range pts {
-					rep[i] = fss.Point{L: q.L, Theta: q.Theta + q.Err*gen.Norm(), Err: q.Err}
+					th := q.Theta + q.Err*gen.Norm()
+					if !parametric {
+						th = roots[i][r]
+					}
+					rep[i] = fss.Point{L: q.L, Theta: th, Err: q.Err}
 				}
 				if f, err := fss.Solve(rep, fit.Y, free, p.Correction); err == nil {
 					tc, ys, as = append(tc, f.ThetaC), append(ys, f.Y), append(as, f.A)

@@ -43,7 +43,7 @@ const (
 	stitchVersion    = 2
 	exactVersion     = 1
 	transformVersion = 2
-	scalingVersion   = 2
+	scalingVersion   = 3
 	fitVersion       = 1
 )
 
