@@ -78,21 +78,45 @@ func (t *Table) weights(lnRho []float64) (w []float64, w0 float64) {
 }
 
 // Eval computes sign(θ) and Im m(θ) on the grid from ln ρ (index (M+N)/2).
-func (t *Table) Eval(lnRho []float64) Values {
-	w, w0 := t.weights(lnRho)
-	z0 := w0
-	for _, x := range w {
-		z0 += 2 * x
+func (t *Table) Eval(lnRho []float64) Values { return t.EvalMany([][]float64{lnRho})[0] }
+
+// replicaBlock is how many ln ρ vectors share one pass over the table: the
+// table (2·G·K floats, 32 MB at G = 1001, K = 2048) is far larger than the
+// caches, so each row is reused for a block of weight vectors while it is
+// cached (a block of 16 at K = 2048 is 256 KB).
+const replicaBlock = 16
+
+// EvalMany computes sign and Im m for several ln ρ; the results are those
+// of Eval applied one by one (the same operations in the same order).
+func (t *Table) EvalMany(lnRhos [][]float64) []Values {
+	k := len(t.Ms)
+	out := make([]Values, len(lnRhos))
+	ws := make([][]float64, len(lnRhos))
+	w0s := make([]float64, len(lnRhos))
+	z0s := make([]float64, len(lnRhos))
+	for r, lr := range lnRhos {
+		w, w0 := t.weights(lr)
+		z0 := w0
+		for _, x := range w {
+			z0 += 2 * x
+		}
+		ws[r], w0s[r], z0s[r] = w, w0, z0
+		out[r] = Values{Sign: make([]float64, len(t.Theta)), ImM: make([]float64, len(t.Theta))}
 	}
-	k := len(w)
-	v := Values{Sign: make([]float64, len(t.Theta)), ImM: make([]float64, len(t.Theta))}
-	for g := range t.Theta {
-		zc, zs := dot2(w, t.cos[g*k:(g+1)*k], t.msin[g*k:(g+1)*k])
-		z := w0 + 2*zc
-		v.Sign[g] = z / z0
-		v.ImM[g] = 2 * zs / (z * float64(t.N))
+	n := float64(t.N)
+	for lo := 0; lo < len(lnRhos); lo += replicaBlock {
+		hi := min(lo+replicaBlock, len(lnRhos))
+		for g := range t.Theta {
+			rowC, rowS := t.cos[g*k:(g+1)*k], t.msin[g*k:(g+1)*k]
+			for r := lo; r < hi; r++ {
+				zc, zs := dot2(ws[r], rowC, rowS)
+				z := w0s[r] + 2*zc
+				out[r].Sign[g] = z / z0s[r]
+				out[r].ImM[g] = 2 * zs / (z * n)
+			}
+		}
 	}
-	return v
+	return out
 }
 
 // dot2 returns a·b and a·c in one pass over a.
@@ -150,8 +174,7 @@ func Evaluate(t *Table, central []float64, replicas [][]float64) *Curve {
 	c.ImMErr = make([]float64, g)
 	c.DeltaF = make([]float64, g)
 	c.DeltaFErr = make([]float64, g)
-	for _, r := range replicas {
-		rv := t.Eval(r)
+	for _, rv := range t.EvalMany(replicas) {
 		c.ReplicaSign = append(c.ReplicaSign, rv.Sign)
 		c.ReplicaImM = append(c.ReplicaImM, rv.ImM)
 	}
