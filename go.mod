@@ -1,12 +1,13 @@
 module strata
 
-go 1.26.8
+go 1.25
 
 require (
 	codeberg.org/sbinet/npyio v0.14.0
 	github.com/BurntSushi/toml v1.6.0
 	github.com/zeebo/blake3 v0.2.4
 	gonum.org/v1/gonum v0.17.0
+	gonum.org/v1/plot v0.17.0
 )
 
 require (
@@ -23,5 +24,4 @@ require (
 	golang.org/x/image v0.30.0 // indirect
 	golang.org/x/text v0.34.0 // indirect
 	golang.org/x/tools v0.41.0 // indirect
-	gonum.org/v1/plot v0.17.0 // indirect
 )
