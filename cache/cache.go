@@ -284,16 +284,6 @@ func (c *Cache) walk(fn func(path string, k Key, suffix string, info fs.FileInfo
 	return nil
 }
 
-// Remove deletes the index entry of action (its output is removed by GC
-// once nothing refers to it).
-func (c *Cache) Remove(action Key) error {
-	err := os.Remove(c.path(action, "-a"))
-	if errors.Is(err, fs.ErrNotExist) {
-		return nil
-	}
-	return err
-}
-
 // GCStats counts what GC removed.
 type GCStats struct {
 	Actions, Outputs int

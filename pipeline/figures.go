@@ -20,8 +20,6 @@ func sizeColor(st *Study, l int) int {
 
 const thetaLabel = "θ = Im h  (h = βH, dimensionless)"
 
-func nanTo(x stages.NullableFloat) float64 { return float64(x) }
-
 func abs(x []float64) []float64 {
 	out := make([]float64, len(x))
 	for i, v := range x {
@@ -73,7 +71,7 @@ func (r *Results) branchFigures(b *BranchNodes, tables map[string]*table) []repo
 			sign.Series = append(sign.Series, report.Series{Label: "exact", Kind: report.Dashed, X: t.col("theta"), Y: abs(ex), Color: 6, Exact: true})
 			imm.Series = append(imm.Series, report.Series{Label: "exact", Kind: report.Dashed, X: t.col("theta"), Y: t.col("im_m_exact"), Color: 6, Exact: true})
 		}
-		sign.Marks = append(sign.Marks, report.Mark{Label: "reach", X: nanTo(tr.Reach), Color: c})
+		sign.Marks = append(sign.Marks, report.Mark{Label: "reach", X: float64(tr.Reach), Color: c})
 		// Im m diverges at the zero: show the range up to 3× its value at the bracket
 		ymax := math.NaN()
 		if tr.FirstZero != nil {
@@ -85,7 +83,7 @@ func (r *Results) branchFigures(b *BranchNodes, tables map[string]*table) []repo
 				}
 			}
 		}
-		if ez := nanTo(tr.ExactFirstZero); !math.IsNaN(ez) {
+		if ez := float64(tr.ExactFirstZero); !math.IsNaN(ez) {
 			imm.Marks = append(imm.Marks, report.Mark{Label: "exact zero", X: ez, Color: 6})
 		}
 		if !math.IsNaN(ymax) && ymax > 0 {
@@ -103,7 +101,7 @@ func (r *Results) branchFigures(b *BranchNodes, tables map[string]*table) []repo
 				}
 				fp.Series = append(fp.Series, report.Series{Label: fmt.Sprintf("fit degree %d", f.Degree), Kind: report.Dashed,
 					X: t.col("theta"), Y: t.col(fmt.Sprintf("im_m_fit%d", f.Degree)), Color: fc})
-				fp.Marks = append(fp.Marks, report.Mark{Label: fmt.Sprintf("bias onset, degree %d", f.Degree), X: nanTo(f.BiasOnset), Color: fc})
+				fp.Marks = append(fp.Marks, report.Mark{Label: fmt.Sprintf("bias onset, degree %d", f.Degree), X: float64(f.BiasOnset), Color: fc})
 			}
 			figs = append(figs, report.Figure{Name: b.Branch.Dir() + "_fit", Panels: []report.Panel{fp}})
 		}
@@ -171,7 +169,7 @@ func (r *Results) studyFigures() []report.Figure {
 		c := sizeColor(st, b.Branch.L)
 		label := fmt.Sprintf("L=%d β=%s", b.Branch.L, stages.F(b.Branch.Beta))
 		reach.Series = append(reach.Series, report.Series{Label: label, Kind: report.Line, X: tr.Theta, Y: abs(stages.Floats(tr.Sign)), Color: c})
-		reach.Marks = append(reach.Marks, report.Mark{X: nanTo(tr.Reach), Color: c})
+		reach.Marks = append(reach.Marks, report.Mark{X: float64(tr.Reach), Color: c})
 	}
 	if len(reach.Series) > 0 {
 		figs = append(figs, report.Figure{Name: "reach", Panels: []report.Panel{reach}})

@@ -100,18 +100,21 @@ type ScalingNode struct {
 	Node  *Node
 }
 
-// shardSeed derives a shard's generator seed by hashing its identity.
-func shardSeed(st *Study, b Branch, m, chunk int) uint64 {
-	rec := fmt.Sprintf("shard-seed\n%d\n%d\n%d\n%s\n%s\n%d\n%d\n", st.Sample.Seed, st.Model.Dimension, b.L,
-		stages.F(b.Beta), st.Sample.Estimator, m, chunk)
-	k := cache.Sum([]byte(rec))
+// seedOf derives a generator seed from the first 8 bytes of the blake3
+// hash of a text record (one value per line).
+func seedOf(format string, args ...any) uint64 {
+	k := cache.Sum([]byte(fmt.Sprintf(format, args...)))
 	return binary.LittleEndian.Uint64(k[:8])
 }
 
+// shardSeed derives a shard's generator seed by hashing its identity.
+func shardSeed(st *Study, b Branch, m, chunk int) uint64 {
+	return seedOf("shard-seed\n%d\n%d\n%d\n%s\n%s\n%d\n%d\n", st.Sample.Seed, st.Model.Dimension, b.L,
+		stages.F(b.Beta), st.Sample.Estimator, m, chunk)
+}
+
 func replicaSeed(st *Study, b Branch) uint64 {
-	rec := fmt.Sprintf("replica-seed\n%d\n%d\n%d\n%s\n", st.Sample.Seed, st.Model.Dimension, b.L, stages.F(b.Beta))
-	k := cache.Sum([]byte(rec))
-	return binary.LittleEndian.Uint64(k[:8])
+	return seedOf("replica-seed\n%d\n%d\n%d\n%s\n", st.Sample.Seed, st.Model.Dimension, b.L, stages.F(b.Beta))
 }
 
 // BuildPlan builds the graph of a study.
@@ -224,11 +227,9 @@ func (p *Plan) addScaling(st *Study, byBeta map[float64][]*BranchNodes) {
 			sn.Sizes = append(sn.Sizes, bn.Branch.L)
 			ins = append(ins, bn.Transform)
 		}
-		rec := fmt.Sprintf("scaling-seed\n%d\n%s\n", st.Sample.Seed, stages.F(beta))
-		k := cache.Sum([]byte(rec))
 		sn.Node = newNode(stages.Scaling(stages.ScalingParams{Dimension: st.Model.Dimension, Beta: beta,
 			Sizes: sn.Sizes, Exponent: exp, Correction: st.Scaling.Correction, MinSize: st.Scaling.MinSize,
-			Replicas: st.Stitch.Replicas, Seed: binary.LittleEndian.Uint64(k[:8])}),
+			Replicas: st.Stitch.Replicas, Seed: seedOf("scaling-seed\n%d\n%s\n", st.Sample.Seed, stages.F(beta))}),
 			"beta"+stages.F(beta), "", ins...)
 		p.Scaling = append(p.Scaling, sn)
 		p.Nodes = append(p.Nodes, sn.Node)

@@ -208,25 +208,13 @@ func Exact(d, l int, beta float64) Task {
 // checks this against the high-precision sum.
 func firstZeroScan(n int, lnRho []float64) float64 {
 	const steps = 4000
-	prev := 1.0
-	for i := 1; i <= steps; i++ {
-		th := math.Pi / 2 * float64(i) / steps
-		s := transform.SignAt(n, lnRho, th)
-		if prev > 0 && s <= 0 {
-			lo, hi := math.Pi/2*float64(i-1)/steps, th
-			for it := 0; it < 100; it++ {
-				mid := (lo + hi) / 2
-				if transform.SignAt(n, lnRho, mid) > 0 {
-					lo = mid
-				} else {
-					hi = mid
-				}
-			}
-			return (lo + hi) / 2
-		}
-		prev = s
+	theta := make([]float64, steps+1)
+	sign := make([]float64, steps+1)
+	for i := range theta {
+		theta[i] = math.Pi / 2 * float64(i) / steps
+		sign[i] = transform.SignAt(n, lnRho, theta[i])
 	}
-	return math.NaN()
+	return transform.FirstRoot(n, lnRho, theta, sign)
 }
 
 // TransformParams are the θ grid and the zero and reach rules.

@@ -117,28 +117,14 @@ func fitCurves(f *FitOut, tab *transform.Table, raw *transform.Curve, n int) []F
 	for _, d := range f.Degrees {
 		v := tab.Eval(d.LnRho)
 		fc := FitCurve{Degree: d.Degree, Chi2Dof: d.Chi2Dof, AIC: d.AIC, Sign: nullable(v.Sign), ImM: nullable(v.ImM),
-			FirstZero: NullableFloat(math.NaN()), BiasOnset: NullableFloat(math.NaN())}
+			BiasOnset: NullableFloat(math.NaN())}
 		for i := range raw.Theta {
 			if raw.ImMErr[i] > 0 && math.Abs(v.ImM[i]-raw.ImM[i]) > 2*raw.ImMErr[i] {
 				fc.BiasOnset = NullableFloat(raw.Theta[i])
 				break
 			}
 		}
-		for i := 1; i < len(raw.Theta); i++ {
-			if v.Sign[i-1] > 0 && v.Sign[i] <= 0 {
-				lo, hi := raw.Theta[i-1], raw.Theta[i]
-				for it := 0; it < 100; it++ {
-					mid := (lo + hi) / 2
-					if transform.SignAt(n, d.LnRho, mid) > 0 {
-						lo = mid
-					} else {
-						hi = mid
-					}
-				}
-				fc.FirstZero = NullableFloat((lo + hi) / 2)
-				break
-			}
-		}
+		fc.FirstZero = NullableFloat(transform.FirstRoot(n, d.LnRho, raw.Theta, v.Sign))
 		out = append(out, fc)
 	}
 	return out

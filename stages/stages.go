@@ -41,10 +41,10 @@ const (
 	sampleVersion    = 1
 	ratiosVersion    = 1
 	stitchVersion    = 2
-	exactVersion     = 1
+	exactVersion     = 2
 	transformVersion = 2
 	scalingVersion   = 3
-	fitVersion       = 1
+	fitVersion       = 2
 )
 
 // Param is one canonical parameter: a name and its value as text (floats

@@ -50,17 +50,6 @@ func New(d, L int) (*Lattice, error) {
 // Bonds returns the number of bonds, d·N.
 func (l *Lattice) Bonds() int { return l.D * l.N }
 
-// BondSum returns S = Σ_⟨ij⟩ s_i s_j over the d·N bonds (each bond once).
-func (l *Lattice) BondSum(s []int8) int {
-	sum := 0
-	for i := 0; i < l.N; i++ {
-		for k := 0; k < l.D; k++ {
-			sum += int(s[i]) * int(s[l.Nbr[i*l.Z+2*k]])
-		}
-	}
-	return sum
-}
-
 // Field returns h_i = Σ_{j nn i} s_j.
 func (l *Lattice) Field(s []int8, i int) int {
 	h := 0

@@ -44,7 +44,9 @@ func (in *Input) Insertion() (*Result, error) {
 		return nil, fmt.Errorf("ratio: insertion needs 2 columns, have %d", in.Cols)
 	}
 	r := &Result{}
-	idx := map[int]int{}
+	// varA[m], varB[m]: (block, variable) of ln<A> and ln<B> of chain m
+	type ref struct{ block, v int }
+	varA, varB := map[int]ref{}, map[int]ref{}
 	for _, m := range Sectors(Insertion, in.N) {
 		ch, err := in.chunks(m)
 		if err != nil {
@@ -52,11 +54,14 @@ func (in *Input) Insertion() (*Result, error) {
 		}
 		var names []string
 		var series [][][]float64
+		bi := len(r.Blocks)
 		if m > 0 {
+			varA[m] = ref{bi, len(names)}
 			names = append(names, fmt.Sprintf("ln<A>(M=%d)", m))
 			series = append(series, column(ch, 2, 0))
 		}
-		if m < in.N && m+2 <= in.N && (m > 0 || in.N%2 == 0) {
+		if m+2 <= in.N {
+			varB[m] = ref{bi, len(names)}
 			names = append(names, fmt.Sprintf("ln<B>(M=%d)", m))
 			series = append(series, column(ch, 2, 1))
 		}
@@ -65,21 +70,11 @@ func (in *Input) Insertion() (*Result, error) {
 			return nil, err
 		}
 		in.warnTau(r, b)
-		idx[m] = len(r.Blocks)
 		r.Blocks = append(r.Blocks, b)
 	}
-	find := func(m int, prefix string) (int, int) {
-		bi := idx[m]
-		for v, name := range r.Blocks[bi].Names {
-			if name[:6] == prefix {
-				return bi, v
-			}
-		}
-		panic("ratio: missing variable")
-	}
 	for _, m := range pairs(in.N) {
-		ba, va := find(m, "ln<A>(")
-		bb, vb := find(m-2, "ln<B>(")
+		ba, va := varA[m].block, varA[m].v
+		bb, vb := varB[m-2].block, varB[m-2].v
 		A, B := r.Blocks[ba], r.Blocks[bb]
 		sa, sb := A.Cov[va][va], B.Cov[vb][vb]
 		w := 1.0

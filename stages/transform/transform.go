@@ -256,7 +256,7 @@ func FirstZero(c *Curve, n int, central []float64, replicas [][]float64, minFrac
 		}
 		if changes == 1 {
 			single++
-			z.ReplicaRoots = append(z.ReplicaRoots, bisect(n, replicas[j], z.Lo, z.Hi))
+			z.ReplicaRoots = append(z.ReplicaRoots, Root(n, replicas[j], z.Lo, z.Hi))
 		}
 	}
 	if len(c.ReplicaSign) > 0 {
@@ -266,12 +266,14 @@ func FirstZero(c *Curve, n int, central []float64, replicas [][]float64, minFrac
 		return z
 	}
 	z.Resolved = true
-	z.Value = bisect(n, central, z.Lo, z.Hi)
+	z.Value = Root(n, central, z.Lo, z.Hi)
 	z.Err = halfWidth68(z.ReplicaRoots)
 	return z
 }
 
-func bisect(n int, lnRho []float64, lo, hi float64) float64 {
+// Root returns the zero of sign(θ) in [lo, hi] by bisection on the direct
+// sum SignAt; the sign must differ at the two ends.
+func Root(n int, lnRho []float64, lo, hi float64) float64 {
 	flo := SignAt(n, lnRho, lo)
 	for it := 0; it < 200 && hi-lo > 1e-15*math.Max(1, hi); it++ {
 		mid := (lo + hi) / 2
@@ -283,6 +285,18 @@ func bisect(n int, lnRho []float64, lo, hi float64) float64 {
 		}
 	}
 	return (lo + hi) / 2
+}
+
+// FirstRoot returns the first zero of sign(θ) on a grid where the sampled
+// sign goes from positive to non-positive, refined by Root; NaN if the
+// sign never changes there.
+func FirstRoot(n int, lnRho, theta, sign []float64) float64 {
+	for i := 1; i < len(theta); i++ {
+		if sign[i-1] > 0 && sign[i] <= 0 {
+			return Root(n, lnRho, theta[i-1], theta[i])
+		}
+	}
+	return math.NaN()
 }
 
 // halfWidth68 returns half the distance between the 16th and 84th
