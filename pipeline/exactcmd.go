@@ -4,17 +4,25 @@ import (
 	"encoding/json"
 	"fmt"
 	"math"
+	"os"
+	"runtime"
+
+	"strata/cache"
 
 	"strata/stages"
 )
 
-const exactUsage = `Usage: strata exact --dimension D --size L --beta B [--theta-min X] [--theta-max X] [--theta-points N]
+const exactUsage = `Usage: strata exact --dimension D --size L --beta B [--theta-min X] [--theta-max X] [--theta-points N] [--cache DIR]
 
 Prints exact references for the periodic L^d lattice as CSV on stdout
 (theta,sign_exact,im_m_exact; sign = Z(β,iθ)/Z(β,0), im_m = Im<M>/N), after
-comment lines (#) with the first zero and, in d = 1, the Lee–Yang edge.
-Available: d = 1 any L (closed forms); d = 2 with L ≤ 8 (transfer matrix);
-d = 3 with L^3 ≤ 27 (enumeration).
+comment lines (#) with the first zero, its precision and, in d = 1, the
+Lee–Yang edge. Available: d = 1 any L (closed forms); d = 2 with L ≤ 8
+(integer counts) and L ≤ 12 (floating-point transfer matrix at fixed β,
+3.5 s at 12×12); d = 3 with L ≤ 3 (enumeration) and L = 4 (transfer matrix,
+about 40 s). Grid points whose exact value the inputs' precision does not
+support are NaN. The transfer-matrix result is kept in the cache (--cache,
+default $STRATA_CACHE; none when both are empty), shared with studies.
 
 Flags:
 `
@@ -28,6 +36,7 @@ func (e *env) exactCommand(args []string) int {
 	tmax := fs.Float64("theta-max", 0.5, "largest θ")
 	pts := fs.Int("theta-points", 101, "number of grid points")
 	bits := fs.Int("max-bits", 1<<14, "precision cap of the high-precision sum (bits)")
+	cacheDir := fs.String("cache", os.Getenv("STRATA_CACHE"), "cache directory for the transfer-matrix result (default $STRATA_CACHE; empty: no cache)")
 	pos, code, done := e.parse(fs, args)
 	if done {
 		return code
@@ -48,8 +57,12 @@ func (e *env) exactCommand(args []string) int {
 	if !(*tmin >= 0 && *tmax <= math.Pi/2 && *tmax > *tmin) || *pts < 2 {
 		probs = append(probs, "need 0 ≤ theta-min < theta-max ≤ π/2 and theta-points ≥ 2")
 	}
-	if len(probs) == 0 && !stages.ExactAvailable(*d, *l) {
-		probs = append(probs, fmt.Sprintf("no exact reference for %d^%d sites (d = 1 any size; d = 2 up to L = 8; d = 3 up to 27 sites)", *l, *d))
+	kind := ""
+	if len(probs) == 0 {
+		var why string
+		if kind, why = stages.ExactKind(*d, *l, *beta, math.MaxInt); kind == "" {
+			probs = append(probs, why)
+		}
 	}
 	if len(probs) > 0 {
 		for _, p := range probs {
@@ -57,16 +70,27 @@ func (e *env) exactCommand(args []string) int {
 		}
 		return ExitUsage
 	}
-	var in [][]byte
-	if stages.NeedsCounts(*d, *l) {
-		cb, err := stages.ExactCounts(*d, *l).Run(nil)
-		if err != nil {
+	var c *cache.Cache
+	if *cacheDir != "" {
+		var err error
+		if c, err = cache.Open(*cacheDir); err != nil {
 			fmt.Fprintf(e.stderr, "strata exact: %v\n", err)
 			return ExitFail
 		}
-		in = append(in, cb)
 	}
-	b, err := stages.Exact(*d, *l, *beta).Run(in)
+	var in []*Node
+	switch kind {
+	case stages.ExactCounts:
+		in = append(in, newNode(stages.ExactCountsTask(*d, *l), "", ""))
+	case stages.ExactDensity:
+		dn := newNode(stages.ExactDensityTask(*d, *l, *beta), "", "")
+		if c == nil || !c.Has(dn.Key) {
+			fmt.Fprintf(e.stderr, "strata exact: computing ρ_β(M) of %d^%d at β = %s by the floating-point transfer matrix on %d CPUs…\n",
+				*l, *d, stages.F(*beta), runtime.GOMAXPROCS(0))
+		}
+		in = append(in, dn)
+	}
+	b, err := e.runCached(c, newNode(stages.Exact(*d, *l, *beta, kind), "", "", in...))
 	if err != nil {
 		fmt.Fprintf(e.stderr, "strata exact: %v\n", err)
 		return ExitFail
@@ -78,6 +102,15 @@ func (e *env) exactCommand(args []string) int {
 	}
 	fmt.Fprintf(e.stdout, "# exact reference: d=%d L=%d N=%d beta=%s (%s)\n", *d, *l, ex.N, stages.F(*beta), ex.Kind)
 	fmt.Fprintf(e.stdout, "# first_zero %s\n", g(float64(ex.FirstZero)))
+	maxErr := 0.0
+	for _, v := range ex.LnRhoErr {
+		maxErr = math.Max(maxErr, v)
+	}
+	inputs := "exact inputs"
+	if ex.RelErr > 0 {
+		inputs = fmt.Sprintf("rho relative error ≤ %s, sign NaN where |sign| < %s", g(ex.RelErr), g(ex.RelErr/stages.SupportedDigits))
+	}
+	fmt.Fprintf(e.stdout, "# precision: first_zero ± %s, ln_rho ± %s (absolute); %s\n", g(float64(ex.FirstZeroErr)), g(maxErr), inputs)
 	if *d == 1 {
 		fmt.Fprintf(e.stdout, "# lee_yang_edge %s\n", g(math.Asin(math.Exp(-2**beta))))
 	}
@@ -87,4 +120,32 @@ func (e *env) exactCommand(args []string) int {
 	fmt.Fprint(e.stdout, string(csvTable([]string{"theta", "sign_exact", "im_m_exact"},
 		[][]float64{grid, stages.Floats(sign), stages.Floats(imm)})))
 	return ExitOK
+}
+
+// runCached computes a node and its inputs, reusing and filling the cache
+// when there is one (a cache that cannot store is a warning, not an error).
+func (e *env) runCached(c *cache.Cache, n *Node) ([]byte, error) {
+	if c != nil {
+		if b, err := c.Get(n.Key); err == nil {
+			return b, nil
+		}
+	}
+	inputs := make([][]byte, len(n.Inputs))
+	for i, in := range n.Inputs {
+		b, err := e.runCached(c, in)
+		if err != nil {
+			return nil, err
+		}
+		inputs[i] = b
+	}
+	out, err := n.Task.Run(inputs)
+	if err != nil {
+		return nil, err
+	}
+	if c != nil {
+		if err := c.Put(n.Key, out); err != nil {
+			fmt.Fprintf(e.stderr, "strata exact: warning: not cached: %v\n", err)
+		}
+	}
+	return out, nil
 }

@@ -146,18 +146,23 @@ func BuildPlan(st *Study) *Plan {
 			WarnTauRatio: st.Ratios.WarnTauRatio, Shards: bn.Shards}), dir, "", bn.Samples...)
 		bn.Stitch = newNode(stages.Stitch(st.Stitch.Replicas, replicaSeed(st, b)), dir, "", bn.Ratios)
 		tin := []*Node{bn.Stitch}
-		if st.Exact.Enabled && stages.ExactAvailable(d, b.L) {
+		if kind := st.exactKind(b); kind != "" {
 			var ein []*Node
-			if stages.NeedsCounts(d, b.L) {
+			switch kind {
+			case stages.ExactCounts:
 				cn := counts[b.L]
 				if cn == nil {
-					cn = newNode(stages.ExactCounts(d, b.L), fmt.Sprintf("counts_L%d", b.L), "")
+					cn = newNode(stages.ExactCountsTask(d, b.L), fmt.Sprintf("counts_L%d", b.L), "")
 					counts[b.L] = cn
 					p.Nodes = append(p.Nodes, cn)
 				}
 				ein = append(ein, cn)
+			case stages.ExactDensity:
+				dn := newNode(stages.ExactDensityTask(d, b.L, b.Beta), dir, "")
+				p.Nodes = append(p.Nodes, dn)
+				ein = append(ein, dn)
 			}
-			bn.Exact = newNode(stages.Exact(d, b.L, b.Beta), dir, "", ein...)
+			bn.Exact = newNode(stages.Exact(d, b.L, b.Beta, kind), dir, "", ein...)
 			tin = append(tin, bn.Exact)
 		}
 		btp := tp

@@ -45,8 +45,10 @@ type BranchSummary struct {
 	Reach             *float64       `json:"reach"`
 	ReachIsLowerBound bool           `json:"reach_is_lower_bound"`
 	ExactFirstZero    *float64       `json:"exact_first_zero"`
-	Fit               []FitSummary   `json:"fit,omitempty"`
-	Warnings          []string       `json:"warnings,omitempty"`
+	// ExactFirstZeroErr bounds the numerical error of exact_first_zero.
+	ExactFirstZeroErr *float64     `json:"exact_first_zero_err"`
+	Fit               []FitSummary `json:"fit,omitempty"`
+	Warnings          []string     `json:"warnings,omitempty"`
 }
 
 // FitSummary is one smoothing degree of a branch.
@@ -153,6 +155,9 @@ func (r *Results) BuildSummary() Summary {
 			}
 		} else if e := r.Exact[b]; e != nil {
 			bs.ExactFirstZero = ptr(float64(e.FirstZero))
+		}
+		if e := r.Exact[b]; e != nil && bs.ExactFirstZero != nil {
+			bs.ExactFirstZeroErr = ptr(float64(e.FirstZeroErr))
 		}
 		if sv := r.Stitch[b]; sv != nil {
 			bs.Warnings = sv.Warnings
@@ -301,6 +306,7 @@ func (r *Results) branchTables(b *BranchNodes) map[string]*table {
 		d.add("ln_rho_err", s.LnRhoErr)
 		if ex != nil {
 			d.add("ln_rho_exact", ex.LnRho)
+			d.add("ln_rho_exact_err", ex.LnRhoErr)
 		}
 		out["density"] = d
 	}

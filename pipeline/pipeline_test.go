@@ -329,7 +329,7 @@ func TestOutputsContract(t *testing.T) {
 	}
 	heads := map[string]string{
 		"L6_beta0.4/ratios.csv":    "M,ln_ratio,ln_ratio_err,tau_int,ln_ratio_exact",
-		"L6_beta0.4/density.csv":   "M,ln_rho,ln_rho_err,ln_rho_exact",
+		"L6_beta0.4/density.csv":   "M,ln_rho,ln_rho_err,ln_rho_exact,ln_rho_exact_err",
 		"L6_beta0.4/transform.csv": "theta,sign,sign_err,im_m,im_m_err,delta_f,delta_f_err,sign_exact,im_m_exact",
 		"scaling_beta0.4.csv":      "L,theta1,theta1_err,theta1_exact",
 	}
@@ -417,7 +417,8 @@ func TestShowExactBudgetCommands(t *testing.T) {
 		t.Errorf("budget: exit %d\n%s", code, stdout)
 	}
 	code, stdout, _ = runCLI(t, "exact", "--dimension", "1", "--size", "64", "--beta", "0.45", "--theta-max", "0.6", "--theta-points", "121")
-	if code != 0 || strings.Count(stdout, "\n") != 3+1+121 || !strings.Contains(stdout, "# first_zero 0.41937") {
+	if code != 0 || strings.Count(stdout, "\n") != 4+1+121 || !strings.Contains(stdout, "# first_zero 0.41937") ||
+		!strings.Contains(stdout, "# precision: first_zero ± ") {
 		t.Errorf("exact: exit %d\n%.300s", code, stdout)
 	}
 	if code, _, _ := runCLI(t, "exact", "--dimension", "3", "--size", "5", "--beta", "0.2"); code != 2 {

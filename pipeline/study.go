@@ -15,6 +15,7 @@ import (
 	"github.com/BurntSushi/toml"
 
 	"strata/cache"
+	"strata/stages"
 	"strata/stages/ratio"
 )
 
@@ -64,6 +65,19 @@ type StitchSpec struct {
 type ExactSpec struct {
 	Enabled bool `toml:"enabled" json:"enabled"`
 	MaxBits int  `toml:"max_bits" json:"max_bits"` // precision cap of the high-precision sum
+	// MaxSites: no exact reference for d ≥ 2 lattices with more sites
+	// (default by dimension: 144 in 2D, 64 in 3D, the transfer matrices'
+	// whole range).
+	MaxSites *int `toml:"max_sites" json:"max_sites"`
+}
+
+// exactKind is how the exact reference of a branch is computed ("" for none).
+func (st *Study) exactKind(b Branch) string {
+	if !st.Exact.Enabled {
+		return ""
+	}
+	kind, _ := stages.ExactKind(st.Model.Dimension, b.L, b.Beta, *st.Exact.MaxSites)
+	return kind
 }
 
 // TransformSpec is the θ grid (θ = Im h, h = βH dimensionless) and the
@@ -295,6 +309,12 @@ func (st *Study) validate(p *Problems) {
 	}
 	if st.Exact.MaxBits < 256 {
 		p.add("exact.max_bits", "%d must be ≥ 256", st.Exact.MaxBits)
+	}
+	if st.Exact.MaxSites == nil {
+		v := stages.DefaultExactMaxSites(m.Dimension)
+		st.Exact.MaxSites = &v
+	} else if *st.Exact.MaxSites < 0 {
+		p.add("exact.max_sites", "%d must be ≥ 0", *st.Exact.MaxSites)
 	}
 	t := st.Transform
 	for _, kv := range []struct {

@@ -3,6 +3,7 @@ package stages
 import (
 	"fmt"
 	"math"
+	"runtime"
 	"strata/stages/analysis"
 
 	"strata/stages/dos"
@@ -118,33 +119,72 @@ func Stitch(replicas int, seed uint64) Task {
 
 // ExactOut is an exact reference for one branch.
 type ExactOut struct {
-	Kind      string // "ring" (closed forms) or "counts" (exact g(S, M))
+	Kind      string // "ring" (closed forms), "counts" (exact g(S, M)) or "density" (floating-point ρ_β)
 	D, N      int
 	Beta      float64
 	LnRho     []float64
+	LnRhoErr  []float64 // bound on the absolute error of LnRho
 	FirstZero NullableFloat
-	Counts    *exact.Counts `json:",omitempty"`
+	// FirstZeroErr bounds the error of FirstZero from the inputs' error
+	// and the float64 evaluation of the sign near the root.
+	FirstZeroErr NullableFloat
+	// RelErr bounds the relative error of each ρ(M) fed to the Fourier
+	// sum: 0 for the closed forms and the exact counts.
+	RelErr  float64
+	Counts  *exact.Counts  `json:",omitempty"`
+	Density *exact.Density `json:",omitempty"`
 }
 
-// ExactAvailable reports whether an exact reference exists for L^d: the
-// ring closed forms for d = 1, the torus transfer matrix for d = 2 up to
-// L = 8, enumeration for d = 3 up to 27 sites.
-func ExactAvailable(d, l int) bool {
+// Exact reference kinds.
+const (
+	ExactRing    = "ring"
+	ExactCounts  = "counts"
+	ExactDensity = "density"
+)
+
+// DefaultExactMaxSites is the default of [exact] max_sites: the whole range
+// of the transfer matrices (2D 12×12, 3D 4³).
+func DefaultExactMaxSites(d int) int {
 	switch d {
-	case 1:
-		return true
 	case 2:
-		return l <= exact.MaxTorusSize
+		return exact.MaxDensitySize2D * exact.MaxDensitySize2D
+	case 3:
+		return exact.MaxDensitySize3D * exact.MaxDensitySize3D * exact.MaxDensitySize3D
 	}
-	return math.Pow(float64(l), float64(d)) <= exact.MaxEnumerateSites
+	return 0
 }
 
-// NeedsCounts reports whether the exact reference of L^d is built from
-// integer counts g(S, M) (which do not depend on β and are cached apart).
-func NeedsCounts(d, l int) bool { return d > 1 && ExactAvailable(d, l) }
+// ExactKind says how the exact reference of L^d at β is computed: closed
+// forms on rings (any size), integer counts g(S, M) where they fit (2D
+// L ≤ 8 by transfer matrix, 3D up to 27 sites by enumeration), else the
+// floating-point transfer matrix at fixed β (2D L ≤ 12, 3D L = 4, β up to
+// exact.DensityMaxBeta). d ≥ 2 lattices with more than maxSites sites get
+// none. When there is none, why says so.
+func ExactKind(d, l int, beta float64, maxSites int) (kind, why string) {
+	if d == 1 {
+		return ExactRing, ""
+	}
+	n := 1
+	for i := 0; i < d; i++ {
+		n *= l
+	}
+	switch {
+	case n > maxSites:
+		return "", fmt.Sprintf("%d^%d = %d sites exceeds exact.max_sites = %d", l, d, n, maxSites)
+	case d == 2 && l <= exact.MaxTorusSize, d == 3 && n <= exact.MaxEnumerateSites:
+		return ExactCounts, ""
+	case !exact.DensityAvailable(d, l):
+		return "", fmt.Sprintf("no exact reference for %d^%d sites (d = 1 any size; d = 2 up to L = %d; d = 3 up to L = %d)",
+			l, d, exact.MaxDensitySize2D, exact.MaxDensitySize3D)
+	case beta > exact.DensityMaxBeta(d, l):
+		return "", fmt.Sprintf("β = %v is above %.3g, where the floating-point transfer matrix of %d^%d could underflow",
+			beta, exact.DensityMaxBeta(d, l), l, d)
+	}
+	return ExactDensity, ""
+}
 
-// ExactCounts returns the task computing g(S, M) for L^d (d ≥ 2).
-func ExactCounts(d, l int) Task {
+// ExactCountsTask returns the task computing g(S, M) for L^d (d ≥ 2).
+func ExactCountsTask(d, l int) Task {
 	return Task{
 		Stage: ExactStage, Version: exactVersion,
 		Params: []Param{{"counts", "g(S,M)"}, {"dimension", I(d)}, {"size", I(l)}},
@@ -167,46 +207,86 @@ func ExactCounts(d, l int) Task {
 	}
 }
 
+// ExactDensityTask returns the task computing ρ_β(M) of L^d at one β by the
+// floating-point transfer matrix, on all CPUs (the output does not depend
+// on their number).
+func ExactDensityTask(d, l int, beta float64) Task {
+	return Task{
+		Stage: ExactDensityStage, Version: exactDensityVersion,
+		Params: []Param{{"beta", F(beta)}, {"dimension", I(d)}, {"size", I(l)}},
+		Run: func([][]byte) ([]byte, error) {
+			dens, err := exact.TorusDensity(d, l, beta, runtime.GOMAXPROCS(0))
+			if err != nil {
+				return nil, err
+			}
+			return encode(dens)
+		},
+	}
+}
+
 // Exact returns the task computing the exact reference of one branch; for
-// d ≥ 2 inputs[0] is the output of ExactCounts(d, l).
-func Exact(d, l int, beta float64) Task {
+// the counts and density kinds inputs[0] is the output of ExactCountsTask
+// or ExactDensityTask.
+func Exact(d, l int, beta float64, kind string) Task {
 	return Task{
 		Stage: ExactStage, Version: exactVersion,
-		Params: []Param{{"beta", F(beta)}, {"dimension", I(d)}, {"size", I(l)}},
+		Params: []Param{{"beta", F(beta)}, {"dimension", I(d)}, {"kind", kind}, {"size", I(l)}},
 		Run: func(inputs [][]byte) ([]byte, error) {
 			lat, err := lattice.New(d, l)
 			if err != nil {
 				return nil, err
 			}
-			out := ExactOut{D: d, N: lat.N, Beta: beta}
-			if d == 1 {
-				out.Kind = "ring"
+			out := ExactOut{Kind: kind, D: d, N: lat.N, Beta: beta}
+			switch kind {
+			case ExactRing:
 				out.LnRho = exact.RingLnRho(lat.N, beta)
-				out.FirstZero = NullableFloat(exact.RingFirstZero(lat.N, beta))
+				out.LnRhoErr = exact.RingLnRhoErr(lat.N, beta)
+				z := exact.RingFirstZero(lat.N, beta)
+				out.FirstZero = NullableFloat(z)
+				out.FirstZeroErr = NullableFloat(8 * epsilon / math.Sin(z)) // acos of a few-ulp argument
 				return encode(out)
+			case ExactCounts, ExactDensity:
+			default:
+				return nil, fmt.Errorf("unknown exact reference kind %q", kind)
 			}
 			if len(inputs) != 1 {
-				return nil, fmt.Errorf("exact reference for d=%d needs the counts as input", d)
+				return nil, fmt.Errorf("exact reference of kind %s needs one input", kind)
 			}
-			var c exact.Counts
-			if err := decode(inputs[0], &c); err != nil {
-				return nil, err
+			if kind == ExactCounts {
+				var c exact.Counts
+				if err := decode(inputs[0], &c); err != nil {
+					return nil, err
+				}
+				out.Counts = &c
+				out.LnRho = c.LnRho(beta)
+				out.LnRhoErr = c.LnRhoErr(beta)
+			} else {
+				var dens exact.Density
+				if err := decode(inputs[0], &dens); err != nil {
+					return nil, err
+				}
+				out.Density = &dens
+				out.RelErr = dens.RelErr
+				out.LnRho = dens.LnRho()
+				out.LnRhoErr = dens.LnRhoErr()
 			}
-			out.Kind = "counts"
-			out.Counts = &c
-			out.LnRho = c.LnRho(beta)
-			out.FirstZero = NullableFloat(firstZeroScan(lat.N, out.LnRho))
+			z, zerr := firstZeroScan(lat.N, out.LnRho, out.LnRhoErr)
+			out.FirstZero, out.FirstZeroErr = NullableFloat(z), NullableFloat(zerr)
 			return encode(out)
 		},
 	}
 }
 
+const epsilon = 0x1p-53
+
 // firstZeroScan finds the first sign change of Z(iθ) on (0, π/2] from an
-// exact ln ρ and refines it by bisection; NaN if there is none. float64 is
-// adequate for the lattices with counts (N ≤ 64) where the sign near the
-// first zero is far above 1e−13; the exact-zero test of package exact
-// checks this against the high-precision sum.
-func firstZeroScan(n int, lnRho []float64) float64 {
+// exact ln ρ and refines it by bisection in float64; NaN if there is none.
+// The error bound is δ/|sign′(θ₁)|, δ the bound on the float64 sign near
+// the root: the inputs' error (ln ρ to within lnRhoErr, a relative error
+// of ρ) plus the rounding of the sum, (N+4)ε relative to Z(0) (Higham,
+// Accuracy and Stability of Numerical Algorithms, §4.2), plus the rounding
+// of ln ρ − max before the exponential.
+func firstZeroScan(n int, lnRho, lnRhoErr []float64) (zero, err float64) {
 	const steps = 4000
 	theta := make([]float64, steps+1)
 	sign := make([]float64, steps+1)
@@ -214,7 +294,21 @@ func firstZeroScan(n int, lnRho []float64) float64 {
 		theta[i] = math.Pi / 2 * float64(i) / steps
 		sign[i] = transform.SignAt(n, lnRho, theta[i])
 	}
-	return transform.FirstRoot(n, lnRho, theta, sign)
+	zero = transform.FirstRoot(n, lnRho, theta, sign)
+	if math.IsNaN(zero) {
+		return zero, math.NaN()
+	}
+	delta := float64(n+4) * epsilon
+	top := math.Inf(-1)
+	for _, v := range lnRho {
+		top = math.Max(top, math.Abs(v))
+	}
+	in := 0.0
+	for _, e := range lnRhoErr {
+		in = math.Max(in, e)
+	}
+	delta += in + 4*epsilon*top
+	return zero, delta / math.Abs(transform.SignSlope(n, lnRho, zero))
 }
 
 // TransformParams are the θ grid and the zero and reach rules.
@@ -320,21 +414,35 @@ func Transform(p TransformParams) Task {
 	}
 }
 
+// SupportedDigits is the relative precision below which an exact value on
+// the grid is replaced by NaN: a value is kept where the error its inputs
+// carry is at most 1e−3 of it.
+const SupportedDigits = 1e-3
+
 // ExactOnGrid evaluates the exact sign and Im m on a grid: closed forms on the
 // ring, the high-precision Fourier sum (NaN where unverified) otherwise.
+// With inputs of relative error δ (e.RelErr) the sign is off by at most δ
+// (Σ ρ|cos θM| ≤ Z(0)) and Im m by about δ(1+|Im m|)/|sign|, so points
+// with |sign| < δ/SupportedDigits are NaN.
 func ExactOnGrid(e *ExactOut, grid []float64, maxBits int) (sign, imM []NullableFloat) {
 	sign = make([]NullableFloat, len(grid))
 	imM = make([]NullableFloat, len(grid))
 	var rho exact.RhoFunc
-	if e.Kind != "ring" {
+	switch e.Kind {
+	case ExactCounts:
 		rho = e.Counts.Rho(e.Beta)
+	case ExactDensity:
+		rho = e.Density.Rho()
 	}
 	for i, th := range grid {
 		var s, m float64
-		if e.Kind == "ring" {
+		if e.Kind == ExactRing {
 			s, m = exact.RingSign(e.N, e.Beta, th)
 		} else {
 			s, m = exact.HighPrecision(rho, e.N, th, 1e-12, uint(maxBits))
+		}
+		if math.Abs(s)*SupportedDigits < e.RelErr {
+			s, m = math.NaN(), math.NaN()
 		}
 		sign[i], imM[i] = NullableFloat(s), NullableFloat(m)
 	}

@@ -27,24 +27,28 @@ import (
 
 // Stage names, as they appear in manifests.
 const (
-	SampleStage    = "sample"
-	RatiosStage    = "ratios"
-	StitchStage    = "stitch"
-	ExactStage     = "exact"
-	TransformStage = "transform"
-	ScalingStage   = "scaling"
-	FitStage       = "fit"
+	SampleStage = "sample"
+	RatiosStage = "ratios"
+	StitchStage = "stitch"
+	ExactStage  = "exact"
+	// ExactDensityStage is ρ_β(M) by the floating-point transfer matrix,
+	// cached per (d, L, β).
+	ExactDensityStage = "exact_density"
+	TransformStage    = "transform"
+	ScalingStage      = "scaling"
+	FitStage          = "fit"
 )
 
 // Code versions: bump when a stage's output for the same inputs changes.
 const (
-	sampleVersion    = 1
-	ratiosVersion    = 1
-	stitchVersion    = 2
-	exactVersion     = 2
-	transformVersion = 2
-	scalingVersion   = 3
-	fitVersion       = 2
+	sampleVersion       = 1
+	ratiosVersion       = 1
+	stitchVersion       = 2
+	exactVersion        = 3
+	exactDensityVersion = 1
+	transformVersion    = 3
+	scalingVersion      = 3
+	fitVersion          = 2
 )
 
 // Param is one canonical parameter: a name and its value as text (floats

@@ -64,6 +64,19 @@ func (c *Counts) LnRho(beta float64) []float64 {
 	return out
 }
 
+// LnRhoErr bounds the absolute float64 rounding error of LnRho: each term
+// ln g + βS is rounded to a few ulps of its size, and the log-sum-exp adds
+// one rounding per term (first order; Higham, Accuracy and Stability of
+// Numerical Algorithms, §4.2).
+func (c *Counts) LnRhoErr(beta float64) []float64 {
+	lr := c.LnRho(beta)
+	out := make([]float64, len(lr))
+	for k, v := range lr {
+		out[k] = 0x1p-53 * (4*(math.Abs(v)+beta*float64(c.Bonds)+float64(c.N)*math.Ln2+1) + float64(c.Bonds+2))
+	}
+	return out
+}
+
 // EnergyCounts returns g(E) over E = −S (summed over M), indexed by
 // (S+Bonds)/2.
 func (c *Counts) EnergyCounts() []uint64 {

@@ -41,6 +41,19 @@ func RingLnRho(n int, beta float64) []float64 {
 	return out
 }
 
+// RingLnRhoErr bounds the absolute rounding error of RingLnRho: three
+// log-gamma values per binomial, each to a few ulps of ln Γ(N+1), the
+// βS term, and one rounding per term of the log-sum-exp (first order).
+func RingLnRhoErr(n int, beta float64) []float64 {
+	lg, _ := math.Lgamma(float64(n + 1))
+	e := 0x1p-53 * (16*(6*lg+4*beta*float64(n)+2) + float64(n))
+	out := make([]float64, n+1)
+	for k := range out {
+		out[k] = e
+	}
+	return out
+}
+
 func logSumExp(x []float64) float64 {
 	top := math.Inf(-1)
 	for _, v := range x {

@@ -154,6 +154,22 @@ func SignAt(n int, lnRho []float64, theta float64) float64 {
 	return z / z0
 }
 
+// SignSlope returns d sign/dθ = −Σ_M M ρ(M) sin(θM) / Z(0) at one θ.
+func SignSlope(n int, lnRho []float64, theta float64) float64 {
+	top := math.Inf(-1)
+	for _, v := range lnRho {
+		top = math.Max(top, v)
+	}
+	d, z0 := 0.0, 0.0
+	for k, v := range lnRho {
+		m := float64(2*k - n)
+		w := math.Exp(v - top)
+		d -= w * m * math.Sin(theta*m)
+		z0 += w
+	}
+	return d / z0
+}
+
 // Curve is the transform of a central ln ρ with errors from replicas.
 type Curve struct {
 	Theta                   []float64
