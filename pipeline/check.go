@@ -7,6 +7,8 @@ import (
 	"io"
 	"math"
 	"os"
+	"os/exec"
+	"path/filepath"
 	"sort"
 	"strings"
 
@@ -361,5 +363,57 @@ func (e *env) check(st *Study, res *Results, baseline, junit string, sigma float
 	if failed > 0 {
 		return ExitFail
 	}
+	return ExitOK
+}
+
+// baselineRefusal says why a baseline must not be refreshed from the study
+// at path: it is not in a git checkout, or the checkout has uncommitted
+// changes under stages/ or pipeline/ (the code that makes the numbers).
+// The empty string means go ahead.
+func baselineRefusal(path string) string {
+	dir := filepath.Dir(path)
+	top, err := exec.Command("git", "-C", dir, "rev-parse", "--show-toplevel").Output()
+	if err != nil {
+		return "the study is not in a git checkout (or git is missing)"
+	}
+	root := strings.TrimSpace(string(top))
+	st, err := exec.Command("git", "-C", root, "status", "--porcelain", "--", "stages", "pipeline").Output()
+	if err != nil {
+		return fmt.Sprintf("git status failed in %s: %v", root, err)
+	}
+	if s := strings.TrimSpace(string(st)); s != "" {
+		lines := strings.Split(s, "\n")
+		if len(lines) > 5 {
+			lines = append(lines[:5], "…")
+		}
+		return "uncommitted changes under stages/ or pipeline/: " + strings.Join(lines, "; ")
+	}
+	return ""
+}
+
+// refreshBaseline writes the run's summary as the new baseline, after
+// checking that every [[expect]] entry holds.
+func (e *env) refreshBaseline(st *Study, res *Results, baseline string) int {
+	outs, err := Evaluate(st, res)
+	if err != nil {
+		fmt.Fprintf(e.stderr, "strata check: bad expectation: %v\n", err)
+		return ExitUsage
+	}
+	for _, o := range outs {
+		if !o.Pass {
+			fmt.Fprintf(e.stderr, "strata check: refusing to refresh %s: %s\n", baseline, o.line())
+			return ExitFail
+		}
+	}
+	b, err := json.MarshalIndent(res.BuildSummary(), "", "  ")
+	if err != nil {
+		fmt.Fprintln(e.stderr, err)
+		return ExitFail
+	}
+	if err := writeFileAtomic(baseline, append(b, '\n')); err != nil {
+		fmt.Fprintf(e.stderr, "strata check: --baseline: %v\n", err)
+		return ExitFail
+	}
+	fmt.Fprintf(e.stdout, "baseline %s refreshed (%d expectations hold)\n", baseline, len(outs))
 	return ExitOK
 }

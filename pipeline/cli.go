@@ -28,6 +28,9 @@ const (
 
 type env struct {
 	stdout, stderr io.Writer
+	// outputHook, for tests only, rewrites each computed node's output
+	// before it is stored (bias injection); nil in every real run.
+	outputHook func(stage string, out []byte) []byte
 }
 
 const mainUsage = `strata: density-of-states studies of the Ising model at imaginary field
@@ -112,6 +115,7 @@ type studyFlags struct {
 	shard            string
 	baseline, junit  string
 	sigma            float64
+	refresh, force   bool
 }
 
 func (e *env) newFlagSet(name, usage string) *flag.FlagSet {
@@ -176,7 +180,10 @@ var studyUsages = map[string]string{
 	"show": "Usage: strata show STUDY.toml [flags]\n\nPrints the headline results (first zeros, reach, scaling) from the cache.\n\nFlags:\n",
 	"check": "Usage: strata check STUDY.toml [--baseline summary.json] [--sigma 3] [--junit report.xml] [flags]\n\n" +
 		"Runs the study like 'run', then evaluates its [[expect]] entries and, with --baseline, compares every\n" +
-		"headline number with a stored summary.json. Exit 0 when all hold, 1 when any fails, 2 on bad usage\nor a bad expectation.\n\nFlags:\n",
+		"headline number with a stored summary.json. Exit 0 when all hold, 1 when any fails, 2 on bad usage\nor a bad expectation.\n\n" +
+		"With --refresh-baseline the run's summary replaces the --baseline file instead, provided every\n" +
+		"[[expect]] entry holds and the study's git checkout has no uncommitted changes under stages/ or\n" +
+		"pipeline/ (so a baseline never silently follows a bug).\n\nFlags:\n",
 }
 
 func (e *env) studyCommand(cmd string, args []string) int {
@@ -187,6 +194,8 @@ func (e *env) studyCommand(cmd string, args []string) int {
 		fs.StringVar(&f.baseline, "baseline", "", "compare with this stored summary.json")
 		fs.Float64Var(&f.sigma, "sigma", 3, "baseline tolerance in combined standard errors")
 		fs.StringVar(&f.junit, "junit", "", "also write the outcomes as JUnit XML to this file")
+		fs.BoolVar(&f.refresh, "refresh-baseline", false, "write this run's summary to the --baseline file instead of comparing (refused while stages/ or pipeline/ have uncommitted changes)")
+		fs.BoolVar(&f.force, "force", false, "with --refresh-baseline: write even outside a git checkout or with uncommitted changes")
 	}
 	if cmd == "run" || cmd == "plan" {
 		fs.StringVar(&f.stages, "stages", "", "comma-separated stages to run, with what they need (sample,ratios,stitch,exact,fit,transform,scaling)")
@@ -204,17 +213,30 @@ func (e *env) studyCommand(cmd string, args []string) int {
 		return code
 	}
 	path := pos[0]
+	if f.refresh {
+		if f.baseline == "" {
+			fmt.Fprintln(e.stderr, "strata check: --refresh-baseline needs --baseline FILE")
+			return ExitUsage
+		}
+		if why := baselineRefusal(path); why != "" {
+			if !f.force {
+				fmt.Fprintf(e.stderr, "strata check: refusing to refresh %s: %s (--force overrides)\n", f.baseline, why)
+				return ExitUsage
+			}
+			fmt.Fprintf(e.stderr, "strata check: warning: refreshing %s although %s (--force)\n", f.baseline, why)
+		}
+	}
 	c, err := cache.Open(f.cacheDir)
 	if err != nil {
 		fmt.Fprintln(e.stderr, err)
 		return ExitFail
 	}
 	plan := BuildPlan(st)
-	runner := &Runner{Cache: c, Jobs: f.jobs, Log: e.stderr, Live: isTerminal(e.stderr)}
+	runner := &Runner{Cache: c, Jobs: f.jobs, Log: e.stderr, Live: isTerminal(e.stderr), outputHook: e.outputHook}
 	if f.stages != "" {
 		runner.Only = map[string]bool{}
 		valid := map[string]bool{stages.SampleStage: true, stages.RatiosStage: true, stages.StitchStage: true,
-			stages.ExactStage: true, stages.TransformStage: true, stages.ScalingStage: true, stages.FitStage: true}
+			stages.ExactStage: true, stages.ExactDensityStage: true, stages.TransformStage: true, stages.ScalingStage: true, stages.FitStage: true}
 		for _, s := range strings.Split(f.stages, ",") {
 			s = strings.TrimSpace(s)
 			if !valid[s] {
@@ -267,6 +289,9 @@ func (e *env) studyCommand(cmd string, args []string) int {
 	if runErr != nil {
 		fmt.Fprintf(e.stderr, "strata %s: failed:\n%v\n", cmd, runErr)
 		return ExitFail
+	}
+	if cmd == "check" && f.refresh {
+		return e.refreshBaseline(st, res, f.baseline)
 	}
 	if cmd == "check" {
 		return e.check(st, res, f.baseline, f.junit, f.sigma)
