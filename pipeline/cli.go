@@ -6,6 +6,7 @@ import (
 	"flag"
 	"fmt"
 	"io"
+	"math"
 	"os"
 	"path/filepath"
 	"runtime"
@@ -198,7 +199,7 @@ func (e *env) studyCommand(cmd string, args []string) int {
 		fs.BoolVar(&f.force, "force", false, "with --refresh-baseline: write even outside a git checkout or with uncommitted changes")
 	}
 	if cmd == "run" || cmd == "plan" {
-		fs.StringVar(&f.stages, "stages", "", "comma-separated stages to run, with what they need (sample,ratios,stitch,exact,fit,transform,scaling)")
+		fs.StringVar(&f.stages, "stages", "", "comma-separated stages to run, with what they need (sample,ratios,stitch,exact,exact_density,fit,transform,routes,scaling)")
 		fs.StringVar(&f.shard, "shard", "", "i/K: run only the sample shards assigned to task i of K (with --stages sample)")
 	}
 	if cmd == "plan" {
@@ -236,7 +237,7 @@ func (e *env) studyCommand(cmd string, args []string) int {
 	if f.stages != "" {
 		runner.Only = map[string]bool{}
 		valid := map[string]bool{stages.SampleStage: true, stages.RatiosStage: true, stages.StitchStage: true,
-			stages.ExactStage: true, stages.ExactDensityStage: true, stages.TransformStage: true, stages.ScalingStage: true, stages.FitStage: true}
+			stages.ExactStage: true, stages.ExactDensityStage: true, stages.TransformStage: true, stages.ScalingStage: true, stages.FitStage: true, stages.RoutesStage: true}
 		for _, s := range strings.Split(f.stages, ",") {
 			s = strings.TrimSpace(s)
 			if !valid[s] {
@@ -424,6 +425,40 @@ func orNone(s string) string {
 	return s
 }
 
+// showRoutes prints one branch's routes from ρ to the first zero, with the
+// exact zero beside them.
+func (e *env) showRoutes(b BranchSummary) {
+	ex := "none"
+	if b.ExactFirstZero != nil {
+		ex = fmt.Sprintf("%.6g", *b.ExactFirstZero)
+	}
+	fmt.Fprintf(e.stdout, "\nroutes of %s (exact first zero %s):\n", b.Dir, ex)
+	tw := tabwriter.NewWriter(e.stdout, 2, 4, 2, ' ', 0)
+	fmt.Fprintln(tw, "  route\tfirst zero\torder\ttruncation\tRe h0\tbias onset (MC, exact)")
+	num := func(x stages.NullableFloat, format string) string {
+		if math.IsNaN(float64(x)) {
+			return "—"
+		}
+		return fmt.Sprintf(format, float64(x))
+	}
+	for _, r := range b.Routes {
+		fz := "none"
+		if r.FirstZero != nil {
+			fz = num(r.FirstZero.Value, "%.6g")
+			if !math.IsNaN(float64(r.FirstZero.Error)) {
+				fz += " ± " + num(r.FirstZero.Error, "%.2g")
+			}
+		}
+		order := "—"
+		if r.Order > 0 {
+			order = strconv.Itoa(r.Order)
+		}
+		fmt.Fprintf(tw, "  %s\t%s\t%s\t%s\t%s\t%s, %s\n", r.Route, fz, order, num(r.Truncation, "%.2g"), num(r.ReH, "%.2g"),
+			num(r.BiasOnset, "%.4g"), num(r.BiasOnsetExact, "%.4g"))
+	}
+	tw.Flush()
+}
+
 func (e *env) show(p *Plan, c *cache.Cache) int {
 	res := LoadResults(c, p)
 	s := res.BuildSummary()
@@ -451,6 +486,11 @@ func (e *env) show(p *Plan, c *cache.Cache) int {
 		fmt.Fprintf(tw, "%s\t%d\t%s\t%s\t%s\t%s\n", b.Dir, b.Size, stages.F(b.Beta), fz, ex, reach)
 	}
 	tw.Flush()
+	for _, b := range s.Branches {
+		if len(b.Routes) > 0 {
+			e.showRoutes(b)
+		}
+	}
 	for _, sc := range s.Scaling {
 		if sc.ThetaC == nil {
 			fmt.Fprintf(e.stdout, "scaling beta=%s: %s\n", stages.F(sc.Beta), sc.Note)

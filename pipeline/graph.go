@@ -83,6 +83,7 @@ type BranchNodes struct {
 	Exact     *Node // nil when no exact reference exists
 	Fit       *Node // nil unless [fit] enabled
 	Transform *Node
+	Routes    *Node // nil unless [routes] enabled
 }
 
 // Plan is a study's full graph in dependency order.
@@ -173,6 +174,14 @@ func BuildPlan(st *Study) *Plan {
 			btp.HasFit = true
 		}
 		bn.Transform = newNode(stages.Transform(btp), dir, "", tin...)
+		if st.Routes.Enabled {
+			rin := []*Node{bn.Stitch, bn.Transform}
+			if bn.Exact != nil {
+				rin = append(rin, bn.Exact)
+			}
+			bn.Routes = newNode(stages.Routes(stages.RoutesParams{MaxOrder: st.Routes.MaxOrder, Fields: st.Routes.Fields,
+				HasExact: bn.Exact != nil}), dir, "", rin...)
+		}
 		p.Branches = append(p.Branches, bn)
 		byBeta[b.Beta] = append(byBeta[b.Beta], bn)
 		p.Nodes = append(p.Nodes, bn.Samples...)
@@ -184,6 +193,9 @@ func BuildPlan(st *Study) *Plan {
 			p.Nodes = append(p.Nodes, bn.Fit)
 		}
 		p.Nodes = append(p.Nodes, bn.Transform)
+		if bn.Routes != nil {
+			p.Nodes = append(p.Nodes, bn.Routes)
+		}
 	}
 	p.addScaling(st, byBeta)
 	sort.SliceStable(p.Nodes, func(i, j int) bool { return p.Nodes[i].level < p.Nodes[j].level })

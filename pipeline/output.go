@@ -46,9 +46,10 @@ type BranchSummary struct {
 	ReachIsLowerBound bool           `json:"reach_is_lower_bound"`
 	ExactFirstZero    *float64       `json:"exact_first_zero"`
 	// ExactFirstZeroErr bounds the numerical error of exact_first_zero.
-	ExactFirstZeroErr *float64     `json:"exact_first_zero_err"`
-	Fit               []FitSummary `json:"fit,omitempty"`
-	Warnings          []string     `json:"warnings,omitempty"`
+	ExactFirstZeroErr *float64             `json:"exact_first_zero_err"`
+	Fit               []FitSummary         `json:"fit,omitempty"`
+	Routes            []stages.RouteResult `json:"routes,omitempty"`
+	Warnings          []string             `json:"warnings,omitempty"`
 }
 
 // FitSummary is one smoothing degree of a branch.
@@ -93,6 +94,7 @@ type Results struct {
 	Stitch    map[*BranchNodes]*stages.StitchOut
 	Exact     map[*BranchNodes]*stages.ExactOut
 	Transform map[*BranchNodes]*stages.TransformOut
+	Routes    map[*BranchNodes]*stages.RoutesOut
 	Scaling   map[*ScalingNode]*stages.ScalingOut
 }
 
@@ -115,7 +117,7 @@ func load[T any](c *cache.Cache, n *Node) (*T, error) {
 func LoadResults(c *cache.Cache, p *Plan) *Results {
 	r := &Results{Plan: p, Ratios: map[*BranchNodes]*stages.RatiosOut{}, Stitch: map[*BranchNodes]*stages.StitchOut{},
 		Exact: map[*BranchNodes]*stages.ExactOut{}, Transform: map[*BranchNodes]*stages.TransformOut{},
-		Scaling: map[*ScalingNode]*stages.ScalingOut{}}
+		Routes: map[*BranchNodes]*stages.RoutesOut{}, Scaling: map[*ScalingNode]*stages.ScalingOut{}}
 	for _, b := range p.Branches {
 		if v, err := load[stages.RatiosOut](c, b.Ratios); err == nil {
 			r.Ratios[b] = v
@@ -128,6 +130,9 @@ func LoadResults(c *cache.Cache, p *Plan) *Results {
 		}
 		if v, err := load[stages.TransformOut](c, b.Transform); err == nil {
 			r.Transform[b] = v
+		}
+		if v, err := load[stages.RoutesOut](c, b.Routes); err == nil && v != nil {
+			r.Routes[b] = v
 		}
 	}
 	for _, s := range p.Scaling {
@@ -158,6 +163,9 @@ func (r *Results) BuildSummary() Summary {
 		}
 		if e := r.Exact[b]; e != nil && bs.ExactFirstZero != nil {
 			bs.ExactFirstZeroErr = ptr(float64(e.FirstZeroErr))
+		}
+		if ro := r.Routes[b]; ro != nil {
+			bs.Routes = ro.Routes
 		}
 		if sv := r.Stitch[b]; sv != nil {
 			bs.Warnings = sv.Warnings
@@ -329,13 +337,40 @@ func (r *Results) branchTables(b *BranchNodes) map[string]*table {
 		}
 		out["transform"] = t
 	}
+	if ro := r.Routes[b]; ro != nil {
+		t := &table{name: "routes.csv"}
+		t.add("theta", ro.Theta)
+		for _, pc := range ro.Phase {
+			t.add("sign_"+pc.Route, stages.Floats(pc.Sign))
+			t.add("sign_"+pc.Route+"_err", stages.Floats(pc.SignErr))
+		}
+		for _, pc := range ro.Phase {
+			if pc.SignExact != nil {
+				t.add("sign_"+pc.Route+"_exact", stages.Floats(pc.SignExact))
+			}
+		}
+		out["routes"] = t
+		c := &table{name: "cumulants.csv"}
+		var cols [10][]float64
+		for _, row := range ro.Cumulants {
+			for i, v := range []float64{row.H, float64(row.Order), float64(row.Kappa), float64(row.KappaErr),
+				float64(row.Theta1), float64(row.Theta1Err), float64(row.Theta1Trunc), float64(row.ReH),
+				float64(row.KappaExact), float64(row.Theta1Ex)} {
+				cols[i] = append(cols[i], v)
+			}
+		}
+		for i, name := range []string{"h", "order", "kappa", "kappa_err", "theta1", "theta1_err", "theta1_trunc", "re_h", "kappa_exact", "theta1_exact"} {
+			c.add(name, cols[i])
+		}
+		out["cumulants"] = c
+	}
 	return out
 }
 
 func (r *Results) writeBranch(c *cache.Cache, b *BranchNodes, outDir string) error {
 	dir := filepath.Join(outDir, b.Branch.Dir())
 	tables := r.branchTables(b)
-	for _, key := range []string{"ratios", "density", "transform"} {
+	for _, key := range []string{"ratios", "density", "transform", "routes", "cumulants"} {
 		if t := tables[key]; t != nil {
 			if err := writeFileAtomic(filepath.Join(dir, t.name), csvTable(t.header, t.cols)); err != nil {
 				return err

@@ -31,6 +31,7 @@ type Study struct {
 	Transform TransformSpec `toml:"transform" json:"transform"`
 	Scaling   ScalingSpec   `toml:"scaling" json:"scaling"`
 	Fit       FitSpec       `toml:"fit" json:"fit"`
+	Routes    RoutesSpec    `toml:"routes" json:"routes"`
 	Expect    []ExpectSpec  `toml:"expect" json:"expect,omitempty"`
 }
 
@@ -104,6 +105,15 @@ type FitSpec struct {
 	Degrees []int  `toml:"degrees" json:"degrees"` // scanned in one run
 }
 
+// RoutesSpec configures the optional routes stage: real-field cumulants
+// up to MaxOrder at each real field h = βH in Fields, and the phase
+// cumulant expansions.
+type RoutesSpec struct {
+	Enabled  bool      `toml:"enabled" json:"enabled"`
+	MaxOrder int       `toml:"max_order" json:"max_order"`
+	Fields   []float64 `toml:"fields" json:"fields"`
+}
+
 // ExpectSpec is one physics regression expectation.
 type ExpectSpec struct {
 	Branch    string   `toml:"branch" json:"branch,omitempty"`
@@ -130,6 +140,7 @@ func Defaults() Study {
 		Transform: TransformSpec{ThetaMin: 0, ThetaMax: 0.5, ThetaPoints: 101, ReachFactor: 2, ZeroFraction: 0.95},
 		Scaling:   ScalingSpec{Exponent: "free"},
 		Fit:       FitSpec{Target: "ln_rho", Degrees: []int{2, 4, 6, 8}},
+		Routes:    RoutesSpec{MaxOrder: 20, Fields: []float64{0, 0.1, 0.2}},
 	}
 }
 
@@ -364,6 +375,23 @@ func (st *Study) validate(p *Problems) {
 		if d < 1 || d > 64 {
 			p.add("fit.degrees", "%d must be in 1..64", d)
 		}
+	}
+	r := st.Routes
+	if r.MaxOrder < 4 || r.MaxOrder > 40 {
+		p.add("routes.max_order", "%d must be in 4..40 (a leading-zero estimate needs four cumulants)", r.MaxOrder)
+	}
+	if r.Enabled && len(r.Fields) == 0 {
+		p.add("routes.fields", "give at least one real field h")
+	}
+	seenH := map[float64]bool{}
+	for _, h := range r.Fields {
+		if !(h >= 0 && h <= 5) {
+			p.add("routes.fields", "h = %v must be in [0, 5] (h = βH; negative fields mirror positive ones)", h)
+		}
+		if seenH[h] {
+			p.add("routes.fields", "h = %v appears twice", h)
+		}
+		seenH[h] = true
 	}
 	st.validateExpect(p)
 }

@@ -125,3 +125,31 @@ func TestCoverage(t *testing.T) {
 		cr.check(t, label+" ln ρ(M)")
 	}
 }
+
+// Coverage of the replica errors of the h = 0 leading-zero sequence
+// θ₁^{(j)} (j = 1, 2, 3: cumulants to orders 4, 6, 8) against the same
+// estimate on the exact ring density (domain count, checked against
+// enumeration), one pull per independent run, with the bands of check.
+func TestRoutesCoverage(t *testing.T) {
+	if testing.Short() {
+		t.Skip("200 independent runs")
+	}
+	const n, beta = 10, 0.5
+	ex := &ExactOut{Kind: ExactRing, D: 1, N: n, Beta: beta, LnRho: exact.RingLnRho(n, beta)}
+	grid := TransformParams{ThetaMin: 0, ThetaMax: 0.5, Points: 11, ReachFactor: 2, ZeroFraction: 0.95, MaxBits: 4096}
+	cov := make([]coverage, 3)
+	for seed := uint64(1); seed <= 200; seed++ {
+		st, _ := runBranch(t, 1, n, beta, 2, 1000, seed, grid)
+		rows, _ := cumulantRoute(8, 0, st, ex)
+		for j := 1; j <= 3; j++ {
+			r := rows[2*j+1] // order 2j+2
+			if r.Order != 2*j+2 || math.IsNaN(float64(r.Theta1Ex)) {
+				t.Fatalf("row %+v", r)
+			}
+			cov[j-1].add(float64(r.Theta1), float64(r.Theta1Err), float64(r.Theta1Ex))
+		}
+	}
+	for j := range cov {
+		cov[j].check(t, fmt.Sprintf("ring N=%d β=%v θ₁^(%d)", n, beta, j+1))
+	}
+}

@@ -37,6 +37,7 @@ const (
 	TransformStage    = "transform"
 	ScalingStage      = "scaling"
 	FitStage          = "fit"
+	RoutesStage       = "routes"
 )
 
 // Code versions: bump when a stage's output for the same inputs changes.
@@ -49,6 +50,7 @@ const (
 	transformVersion    = 3
 	scalingVersion      = 3
 	fitVersion          = 2
+	routesVersion       = 1
 )
 
 // Param is one canonical parameter: a name and its value as text (floats
