@@ -435,26 +435,20 @@ func (e *env) showRoutes(b BranchSummary) {
 	fmt.Fprintf(e.stdout, "\nroutes of %s (exact first zero %s):\n", b.Dir, ex)
 	tw := tabwriter.NewWriter(e.stdout, 2, 4, 2, ' ', 0)
 	fmt.Fprintln(tw, "  route\tfirst zero\torder\ttruncation\tRe h0\tbias onset (MC, exact)")
-	num := func(x stages.NullableFloat, format string) string {
-		if math.IsNaN(float64(x)) {
-			return "—"
-		}
-		return fmt.Sprintf(format, float64(x))
-	}
 	for _, r := range b.Routes {
 		fz := "none"
 		if r.FirstZero != nil {
-			fz = num(r.FirstZero.Value, "%.6g")
+			fz = nf(r.FirstZero.Value, "%.6g")
 			if !math.IsNaN(float64(r.FirstZero.Error)) {
-				fz += " ± " + num(r.FirstZero.Error, "%.2g")
+				fz += " ± " + nf(r.FirstZero.Error, "%.2g")
 			}
 		}
 		order := "—"
 		if r.Order > 0 {
 			order = strconv.Itoa(r.Order)
 		}
-		fmt.Fprintf(tw, "  %s\t%s\t%s\t%s\t%s\t%s, %s\n", r.Route, fz, order, num(r.Truncation, "%.2g"), num(r.ReH, "%.2g"),
-			num(r.BiasOnset, "%.4g"), num(r.BiasOnsetExact, "%.4g"))
+		fmt.Fprintf(tw, "  %s\t%s\t%s\t%s\t%s\t%s, %s\n", r.Route, fz, order, nf(r.Truncation, "%.2g"), nf(r.ReH, "%.2g"),
+			nf(r.BiasOnset, "%.4g"), nf(r.BiasOnsetExact, "%.4g"))
 	}
 	tw.Flush()
 }

@@ -106,7 +106,62 @@ func (r *Results) branchFigures(b *BranchNodes, tables map[string]*table) []repo
 			figs = append(figs, report.Figure{Name: b.Branch.Dir() + "_fit", Panels: []report.Panel{fp}})
 		}
 	}
+	figs = append(figs, r.routeFigures(b, tables, c, tag)...)
 	return figs
+}
+
+// routeStyles gives each phase route its line style (route → line style).
+var routeStyles = map[string]report.Kind{stages.RoutePhase2: report.Dashed, stages.RoutePhase4: report.Dotted,
+	stages.RouteSeries2: report.DashDot, stages.RouteSeries4: report.LongDash}
+
+// routeFigures draws the phase expansions against the direct sum and the
+// convergence of the cumulant estimates of the first zero with the order.
+func (r *Results) routeFigures(b *BranchNodes, tables map[string]*table, c int, tag string) []report.Figure {
+	rt, t, cu := tables["routes"], tables["transform"], tables["cumulants"]
+	if rt == nil || t == nil || cu == nil {
+		return nil
+	}
+	sign := report.Panel{Title: "routes to the average sign, " + tag, XLabel: thetaLabel, YLabel: "|sign(θ)|", LogY: true,
+		Series: []report.Series{{Label: "direct sum ± σ", Kind: report.Band, X: t.col("theta"), Y: abs(t.col("sign")), Err: t.col("sign_err"), Color: c}}}
+	for _, name := range stages.PhaseRoutes {
+		sign.Series = append(sign.Series, report.Series{Label: name, Kind: routeStyles[name], X: rt.col("theta"), Y: rt.col("sign_" + name), Color: c})
+	}
+	if ex := t.col("sign_exact"); ex != nil {
+		sign.Series = append(sign.Series, report.Series{Label: "exact", Kind: report.Dashed, X: t.col("theta"), Y: abs(ex), Color: 6, Exact: true})
+	}
+	ez := math.NaN()
+	if tr := r.Transform[b]; tr != nil {
+		ez = float64(tr.ExactFirstZero)
+	}
+	conv := report.Panel{Title: "cumulant estimates of θ₁ against the highest order, " + tag, XLabel: "highest cumulant order n",
+		YLabel: "θ₁ estimate", LegendLeft: true}
+	if !math.IsNaN(ez) {
+		conv.YLabel, conv.LogY = "|θ₁ estimate − exact θ₁|", true
+	}
+	hs, orders, th, er := cu.col("h"), cu.col("order"), cu.col("theta1"), cu.col("theta1_err")
+	var fields []float64
+	for i, h := range hs {
+		if i == 0 || h != hs[i-1] {
+			fields = append(fields, h)
+		}
+	}
+	for fi, h := range fields {
+		var x, y, e []float64
+		for i := range hs {
+			if hs[i] == h && !math.IsNaN(th[i]) {
+				x = append(x, orders[i])
+				if math.IsNaN(ez) {
+					y = append(y, th[i])
+				} else {
+					y = append(y, math.Abs(th[i]-ez))
+				}
+				e = append(e, er[i])
+			}
+		}
+		conv.Series = append(conv.Series, report.Series{Label: "h = " + stages.F(h), Kind: report.Points, X: x, Y: y, Err: e, Color: fi})
+	}
+	return []report.Figure{{Name: b.Branch.Dir() + "_routes", Panels: []report.Panel{sign}},
+		{Name: b.Branch.Dir() + "_cumulants", Panels: []report.Panel{conv}}}
 }
 
 // studyFigures builds the per-β scaling figures and the reach comparison.
@@ -210,6 +265,14 @@ func (r *Results) writeFigures(outDir string) ([]report.Rendered, error) {
 	return out, nil
 }
 
+// nf formats a nullable float, "—" for NaN.
+func nf(x stages.NullableFloat, format string) string {
+	if math.IsNaN(float64(x)) {
+		return "—"
+	}
+	return fmt.Sprintf(format, float64(x))
+}
+
 // writeReport writes figures and report.html.
 func (r *Results) writeReport(outDir string, man Manifest, studyText string) (string, error) {
 	figs, err := r.writeFigures(outDir)
@@ -244,6 +307,23 @@ func (r *Results) writeReport(outDir string, man Manifest, studyText string) (st
 			row.Exponent = fmt.Sprintf("%.4g ± %.2g", sc.Exponent.Value, sc.Exponent.Error)
 		}
 		p.Scaling = append(p.Scaling, row)
+	}
+	for _, b := range s.Branches {
+		for _, rr := range b.Routes {
+			row := report.RouteRow{Dir: b.Dir, Route: rr.Route, FirstZero: "none", Exact: dash(b.ExactFirstZero, "%.6g"),
+				Order: "—", Truncation: nf(rr.Truncation, "%.2g"),
+				BiasOnset: nf(rr.BiasOnset, "%.4g") + ", " + nf(rr.BiasOnsetExact, "%.4g")}
+			if rr.FirstZero != nil {
+				row.FirstZero = nf(rr.FirstZero.Value, "%.6g")
+				if !math.IsNaN(float64(rr.FirstZero.Error)) {
+					row.FirstZero += " ± " + nf(rr.FirstZero.Error, "%.2g")
+				}
+			}
+			if rr.Order > 0 {
+				row.Order = fmt.Sprint(rr.Order)
+			}
+			p.Routes = append(p.Routes, row)
+		}
 	}
 	for _, n := range man.Nodes {
 		p.Nodes = append(p.Nodes, report.NodeRow{Stage: n.Stage, Branch: n.Branch, Label: n.Label, Key: n.Key.Short(), Status: n.Status})

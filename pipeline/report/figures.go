@@ -23,10 +23,13 @@ type Kind int
 
 // Series kinds.
 const (
-	Points Kind = iota // markers with error bars (Err may be nil)
-	Line               // a line
-	Band               // a line with a shaded ±Err band
-	Dashed             // a dashed line
+	Points   Kind = iota // markers with error bars (Err may be nil)
+	Line                 // a line
+	Band                 // a line with a shaded ±Err band
+	Dashed               // a dashed line
+	Dotted               // a dotted line
+	DashDot              // a dash-dotted line
+	LongDash             // a long-dashed line
 )
 
 // Series is one data set of a panel.
@@ -133,7 +136,7 @@ func (p Panel) build() (*plot.Plot, error) {
 				}
 			}
 			fallthrough
-		case Line, Dashed:
+		case Line, Dashed, Dotted, DashDot, LongDash:
 			xy := finiteXY(s.X, s.Y, p.LogY)
 			if len(xy) == 0 {
 				continue
@@ -144,8 +147,15 @@ func (p Panel) build() (*plot.Plot, error) {
 			}
 			l.Color = c
 			l.Width = vg.Points(1.2)
-			if s.Kind == Dashed {
+			switch s.Kind {
+			case Dashed:
 				l.Dashes = []vg.Length{vg.Points(4), vg.Points(2)}
+			case Dotted:
+				l.Dashes = []vg.Length{vg.Points(1), vg.Points(2)}
+			case DashDot:
+				l.Dashes = []vg.Length{vg.Points(5), vg.Points(2), vg.Points(1), vg.Points(2)}
+			case LongDash:
+				l.Dashes = []vg.Length{vg.Points(8), vg.Points(3)}
 			}
 			pl.Add(l)
 			if s.Label != "" {

@@ -22,6 +22,11 @@ type ScalingRow struct {
 	Beta, ThetaC, Exponent, Chi2, Sizes, Exact, Note string
 }
 
+// RouteRow is one route of one branch in the routes table.
+type RouteRow struct {
+	Dir, Route, FirstZero, Exact, Order, Truncation, BiasOnset string
+}
+
 // NodeRow is one node of the provenance table.
 type NodeRow struct {
 	Stage, Branch, Label, Key, Status string
@@ -33,6 +38,7 @@ type Page struct {
 	Dimension                                 int
 	Branches                                  []BranchRow
 	Scaling                                   []ScalingRow
+	Routes                                    []RouteRow
 	Figures                                   []Rendered
 	Nodes                                     []NodeRow
 }
@@ -61,6 +67,10 @@ sign = Z(β,iθ)/Z(β,0); Im m = Im⟨M⟩/N per site.</p>
 {{if .Scaling}}<h2>Finite-size scaling θ₁(L) = θ_c + a L^−y</h2>
 <table><tr><th>β</th><th>θ_c</th><th>y</th><th>χ²/dof</th><th>sizes</th><th>exact θ_c</th><th>note</th></tr>
 {{range .Scaling}}<tr><td>{{.Beta}}</td><td>{{.ThetaC}}</td><td>{{.Exponent}}</td><td>{{.Chi2}}</td><td>{{.Sizes}}</td><td>{{.Exact}}</td><td>{{.Note}}</td></tr>
+{{end}}</table>{{end}}
+{{if .Routes}}<h2>Routes from ρ(M) to the first zero, on the same samples</h2>
+<table><tr><th>branch</th><th>route</th><th>first zero</th><th>exact θ₁</th><th>order</th><th>truncation</th><th>bias onset (MC, exact)</th></tr>
+{{range .Routes}}<tr><td>{{.Dir}}</td><td>{{.Route}}</td><td>{{.FirstZero}}</td><td>{{.Exact}}</td><td>{{.Order}}</td><td>{{.Truncation}}</td><td>{{.BiasOnset}}</td></tr>
 {{end}}</table>{{end}}
 <h2>Figures</h2>
 {{range .Figures}}<figure><img alt="{{.Name}}" src="{{datauri .SVG}}"><figcaption class="small">{{.Name}}</figcaption></figure>
