@@ -219,6 +219,12 @@ func headline(s Summary) map[string][2]float64 {
 		if b.FirstZero != nil {
 			out["first_zero "+b.Dir] = [2]float64{b.FirstZero.Value, b.FirstZero.Error}
 		}
+		for _, r := range b.Routes {
+			// the cumulant routes' zeros (direct is first_zero; fits carry no error)
+			if r.FirstZero != nil && r.Route != stages.RouteDirect && !math.IsNaN(float64(r.FirstZero.Error)) {
+				out["first_zero "+b.Dir+" route="+r.Route] = [2]float64{float64(r.FirstZero.Value), float64(r.FirstZero.Error)}
+			}
+		}
 	}
 	for _, sc := range s.Scaling {
 		if sc.ThetaC != nil {
