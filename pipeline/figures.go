@@ -1,12 +1,16 @@
 package pipeline
 
 import (
+	"bytes"
+	"encoding/gob"
+	"encoding/json"
 	"fmt"
 	"math"
 	"os"
 	"path/filepath"
 	"sort"
 
+	"strata/cache"
 	"strata/pipeline/report"
 	"strata/stages"
 )
@@ -18,7 +22,7 @@ func sizeColor(st *Study, l int) int {
 	return sort.SearchInts(sizes, l)
 }
 
-const thetaLabel = "θ = Im h  (h = βH, dimensionless)"
+const thetaLabel = "θ = Im h  (h = βH)"
 
 func abs(x []float64) []float64 {
 	out := make([]float64, len(x))
@@ -49,7 +53,7 @@ func (r *Results) branchFigures(b *BranchNodes, tables map[string]*table) []repo
 				}
 			}
 			n := float64(b.N)
-			f.Panels = []report.Panel{main, {XLabel: "M", YLabel: "pull (MC − exact)/σ", YMin: -4, YMax: 4, XMin: -n, XMax: n,
+			f.Panels = []report.Panel{main, {XLabel: "M", YLabel: "pull", YMin: -4, YMax: 4, XMin: -n, XMax: n,
 				Series: []report.Series{{Kind: report.Points, X: d.col("M"), Y: pull, Color: c}}}}
 		} else {
 			f.Panels = []report.Panel{main}
@@ -58,20 +62,26 @@ func (r *Results) branchFigures(b *BranchNodes, tables map[string]*table) []repo
 	}
 	if q := tables["ratios"]; q != nil {
 		figs = append(figs, report.Figure{Name: b.Branch.Dir() + "_ratio_error", Panels: []report.Panel{{
-			Title: "relative error of r(M) = ρ(M)/ρ(M−2), " + tag, XLabel: "M", YLabel: "σ(ln r) = σ_r / r", LogY: true,
+			Title: "relative error of r(M) = ρ(M)/ρ(M−2), " + tag, XLabel: "M", YLabel: "σ(ln r)", LogY: true,
 			Series: []report.Series{{Label: tag, Kind: report.Points, X: q.col("M"), Y: q.col("ln_ratio_err"), Color: c}}}}})
 	}
 	if t := tables["transform"]; t != nil {
 		tr := r.Transform[b]
-		sign := report.Panel{Title: "average sign, " + tag, XLabel: thetaLabel, YLabel: "|sign(θ)| = |Z(β,iθ)/Z(β,0)|", LogY: true,
+		sign := report.Panel{Title: "sign = Z(iθ)/Z(0), " + tag, XLabel: thetaLabel, YLabel: "|sign(θ)|", LogY: true,
 			Series: []report.Series{{Label: "Monte Carlo ± σ", Kind: report.Band, X: t.col("theta"), Y: abs(t.col("sign")), Err: t.col("sign_err"), Color: c}}}
-		imm := report.Panel{Title: "imaginary magnetization per site, " + tag, XLabel: thetaLabel, YLabel: "Im m(θ) = Im<M>/N",
+		imm := report.Panel{Title: "Im m = Im<M>/N, " + tag, XLabel: thetaLabel, YLabel: "Im m(θ)",
 			Series: []report.Series{{Label: "Monte Carlo ± σ", Kind: report.Band, X: t.col("theta"), Y: t.col("im_m"), Err: t.col("im_m_err"), Color: c}}}
 		if ex := t.col("sign_exact"); ex != nil {
 			sign.Series = append(sign.Series, report.Series{Label: "exact", Kind: report.Dashed, X: t.col("theta"), Y: abs(ex), Color: 6, Exact: true})
 			imm.Series = append(imm.Series, report.Series{Label: "exact", Kind: report.Dashed, X: t.col("theta"), Y: t.col("im_m_exact"), Color: 6, Exact: true})
 		}
 		sign.Marks = append(sign.Marks, report.Mark{Label: "reach", X: float64(tr.Reach), Color: c})
+		if tr.FirstZero != nil {
+			sign.Marks = append(sign.Marks, report.Mark{Label: "first zero", X: tr.FirstZero.Value, Color: c})
+		}
+		if ez := float64(tr.ExactFirstZero); !math.IsNaN(ez) {
+			sign.Marks = append(sign.Marks, report.Mark{Label: "exact zero", X: ez, Color: 6})
+		}
 		// Im m diverges at the zero: show the range up to 3× its value at the bracket
 		ymax := math.NaN()
 		if tr.FirstZero != nil {
@@ -95,13 +105,11 @@ func (r *Results) branchFigures(b *BranchNodes, tables map[string]*table) []repo
 			fp := report.Panel{Title: "raw and smoothed Im m, " + tag, XLabel: thetaLabel, YLabel: "Im m(θ)", YMin: imm.YMin, YMax: imm.YMax,
 				Series: []report.Series{{Label: "raw ± σ", Kind: report.Band, X: t.col("theta"), Y: t.col("im_m"), Err: t.col("im_m_err"), Color: c}}}
 			for i, f := range tr.Fits {
-				fc := i + 1
-				if fc >= c {
-					fc++ // keep the raw colour distinct
-				}
-				fp.Series = append(fp.Series, report.Series{Label: fmt.Sprintf("fit degree %d", f.Degree), Kind: report.Dashed,
-					X: t.col("theta"), Y: t.col(fmt.Sprintf("im_m_fit%d", f.Degree)), Color: fc})
-				fp.Marks = append(fp.Marks, report.Mark{Label: fmt.Sprintf("bias onset, degree %d", f.Degree), X: float64(f.BiasOnset), Color: fc})
+				// fits: solid, black to light grey by degree (sizes keep the palette)
+				sh := 0.65 * float64(i) / math.Max(1, float64(len(tr.Fits)-1))
+				fp.Series = append(fp.Series, report.Series{Label: fmt.Sprintf("fit degree %d", f.Degree), Kind: report.Line,
+					X: t.col("theta"), Y: t.col(fmt.Sprintf("im_m_fit%d", f.Degree)), Color: 6, Shade: sh, Glyph: i + 2})
+				fp.Marks = append(fp.Marks, report.Mark{Label: fmt.Sprintf("bias onset, degree %d", f.Degree), X: float64(f.BiasOnset), Color: 6})
 			}
 			figs = append(figs, report.Figure{Name: b.Branch.Dir() + "_fit", Panels: []report.Panel{fp}})
 		}
@@ -133,10 +141,10 @@ func (r *Results) routeFigures(b *BranchNodes, tables map[string]*table, c int, 
 	if tr := r.Transform[b]; tr != nil {
 		ez = float64(tr.ExactFirstZero)
 	}
-	conv := report.Panel{Title: "cumulant estimates of θ₁ against the highest order, " + tag, XLabel: "highest cumulant order n",
-		YLabel: "θ₁ estimate", LegendLeft: true}
+	conv := report.Panel{Title: "cumulant estimates of θ_1, " + tag, XLabel: "highest cumulant order n",
+		YLabel: "θ_1 estimate"}
 	if !math.IsNaN(ez) {
-		conv.YLabel, conv.LogY = "|θ₁ estimate − exact θ₁|", true
+		conv.YLabel, conv.LogY, conv.Title = "|Δθ_1|", true, "cumulant θ_1 − exact θ_1, "+tag
 	}
 	hs, orders, th, er := cu.col("h"), cu.col("order"), cu.col("theta1"), cu.col("theta1_err")
 	var fields []float64
@@ -158,7 +166,8 @@ func (r *Results) routeFigures(b *BranchNodes, tables map[string]*table, c int, 
 				e = append(e, er[i])
 			}
 		}
-		conv.Series = append(conv.Series, report.Series{Label: "h = " + stages.F(h), Kind: report.Points, X: x, Y: y, Err: e, Color: fi})
+		conv.Series = append(conv.Series, report.Series{Label: "h = " + stages.F(h), Kind: report.Points, X: x, Y: y, Err: e,
+			Color: 6, Shade: 0.3 * float64(fi%3), Glyph: fi + 1})
 	}
 	return []report.Figure{{Name: b.Branch.Dir() + "_routes", Panels: []report.Panel{sign}},
 		{Name: b.Branch.Dir() + "_cumulants", Panels: []report.Panel{conv}}}
@@ -177,8 +186,8 @@ func (r *Results) studyFigures() []report.Figure {
 		if sc.Exponent != nil {
 			y = sc.Exponent.Value
 		}
-		p := report.Panel{Title: fmt.Sprintf("first zero against L^−y, β=%s (y = %.3g)", stages.F(sc.Beta), y),
-			XLabel: "L^−y", YLabel: "θ₁(L)", LegendLeft: true}
+		p := report.Panel{Title: fmt.Sprintf("first zero against L^{−y}, β=%s (y = %.3g)", stages.F(sc.Beta), y),
+			XLabel: "L^{−y}", YLabel: "θ_1(L)"}
 		for _, pt := range sc.Points {
 			x := math.Pow(float64(pt.L), -y)
 			if pt.Theta1 != nil {
@@ -210,7 +219,7 @@ func (r *Results) studyFigures() []report.Figure {
 				Kind: report.Line, X: xs, Y: ys, Color: 6})
 			if sc.ExactThetaC != nil {
 				p.Series = append(p.Series, report.Series{Label: "exact θ_c", Kind: report.Points,
-					X: []float64{0}, Y: []float64{*sc.ExactThetaC}, Color: 3})
+					X: []float64{0}, Y: []float64{*sc.ExactThetaC}, Color: 6, Exact: true})
 			}
 		}
 		figs = append(figs, report.Figure{Name: "scaling_beta" + stages.F(sc.Beta), Panels: []report.Panel{p}})
@@ -232,8 +241,15 @@ func (r *Results) studyFigures() []report.Figure {
 	return figs
 }
 
-// writeFigures renders every figure as PNG and SVG into outDir/figures and
-// returns them with their SVG bytes for the report.
+// figureVersion salts the content hash of a figure: bump it when the
+// drawing code changes what the same arrays look like.
+const figureVersion = "figures v2 (column width, script labels, legend placement, pdf)"
+
+// writeFigures renders every figure as PNG, SVG and PDF into
+// outDir/figures and returns them with their SVG bytes for the report. A
+// figure whose content hash (its arrays and labels, figureVersion) is the
+// one recorded in figures/index.json and whose three files exist is not
+// rendered again.
 func (r *Results) writeFigures(outDir string) ([]report.Rendered, error) {
 	var figs []report.Figure
 	for _, b := range r.Plan.Branches {
@@ -244,25 +260,54 @@ func (r *Results) writeFigures(outDir string) ([]report.Rendered, error) {
 	if err := os.MkdirAll(dir, 0o777); err != nil {
 		return nil, err
 	}
+	indexPath := filepath.Join(dir, "index.json")
+	prev := map[string]string{}
+	if b, err := os.ReadFile(indexPath); err == nil {
+		_ = json.Unmarshal(b, &prev) // a damaged index only costs a re-render
+	}
+	index := map[string]string{}
 	var out []report.Rendered
 	for i := range figs {
-		svg, err := figs[i].Render("svg")
-		if err != nil {
+		f := &figs[i]
+		var content bytes.Buffer // gob, unlike JSON, keeps NaN
+		content.WriteString(figureVersion + "\n")
+		if err := gob.NewEncoder(&content).Encode(f); err != nil {
 			return nil, err
 		}
-		png, err := figs[i].Render("png")
-		if err != nil {
-			return nil, err
+		key := cache.Sum(content.Bytes()).String()
+		index[f.Name] = key
+		svgPath := filepath.Join(dir, f.Name+".svg")
+		if prev[f.Name] == key && exists(filepath.Join(dir, f.Name+".png")) && exists(filepath.Join(dir, f.Name+".pdf")) {
+			if svg, err := os.ReadFile(svgPath); err == nil {
+				out = append(out, report.Rendered{Name: f.Name, SVG: svg})
+				continue
+			}
 		}
-		if err := writeFileAtomic(filepath.Join(dir, figs[i].Name+".svg"), svg); err != nil {
-			return nil, err
+		var svg []byte
+		for _, format := range []string{"svg", "png", "pdf"} {
+			b, err := f.Render(format)
+			if err != nil {
+				return nil, err
+			}
+			if err := writeFileAtomic(filepath.Join(dir, f.Name+"."+format), b); err != nil {
+				return nil, err
+			}
+			if format == "svg" {
+				svg = b
+			}
 		}
-		if err := writeFileAtomic(filepath.Join(dir, figs[i].Name+".png"), png); err != nil {
-			return nil, err
-		}
-		out = append(out, report.Rendered{Name: figs[i].Name, SVG: svg})
+		out = append(out, report.Rendered{Name: f.Name, SVG: svg})
 	}
-	return out, nil
+	b, err := json.MarshalIndent(index, "", "  ")
+	if err != nil {
+		return nil, err
+	}
+	return out, writeFileAtomic(indexPath, b)
+}
+
+func exists(path string) bool {
+	_, err := os.Stat(path)
+	return err == nil
 }
 
 // nf formats a nullable float, "—" for NaN.
