@@ -5,6 +5,7 @@ import (
 	"math"
 	"runtime"
 	"strata/stages/analysis"
+	"strconv"
 
 	"strata/stages/dos"
 	"strata/stages/exact"
@@ -323,11 +324,16 @@ type TransformParams struct {
 	HasExact, HasFit bool
 }
 
-// Grid returns the θ grid.
+// Grid returns the θ grid θ_i = (θ_min·(n−1−i) + θ_max·i)/(n−1), each
+// rounded to 12 significant digits: the value computed with is the value
+// printed (0.05, not 0.049999999999999996), and θ_0, θ_{n−1} are exactly
+// the study's θ_min and θ_max.
 func (p TransformParams) Grid() []float64 {
 	g := make([]float64, p.Points)
+	n1 := float64(p.Points - 1)
 	for i := range g {
-		g[i] = p.ThetaMin + (p.ThetaMax-p.ThetaMin)*float64(i)/float64(p.Points-1)
+		x := (p.ThetaMin*(n1-float64(i)) + p.ThetaMax*float64(i)) / n1
+		g[i], _ = strconv.ParseFloat(strconv.FormatFloat(x, 'g', 12, 64), 64)
 	}
 	return g
 }

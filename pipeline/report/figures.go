@@ -110,11 +110,11 @@ const (
 	ColumnWidth  = 3.4 * vg.Inch
 	panelHeight  = 2.35 * vg.Inch
 	extraPanel   = 1.25 * vg.Inch
-	titleSize    = 8
-	labelSize    = 7.5
-	tickSize     = 7
-	legendSize   = 7
-	MinFontSize  = 7
+	titleSize    = 8.5
+	labelSize    = 8
+	tickSize     = 7.5
+	legendSize   = 7.5
+	MinFontSize  = 7 // points, at ColumnWidth
 	legendMargin = 2 // points between the legend box and the axes
 )
 

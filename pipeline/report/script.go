@@ -12,7 +12,7 @@ import (
 // scriptText is a text.Handler for figure labels with sub- and
 // superscripts: "θ_1(L)", "L^{−y}", "e^{−NΔf}". A script is one rune after
 // _ or ^, or a braced group; it is drawn at scriptScale of the size, raised
-// or lowered by a fraction of it. Greek letters and other symbols are
+// or lowered by a fraction of it (but never below MinFontSize). Greek letters and other symbols are
 // plain Unicode. (The library's own LaTeX handler renders neither scripts
 // nor |·|.)
 type scriptText struct {
@@ -22,7 +22,7 @@ type scriptText struct {
 var _ text.Handler = scriptText{}
 
 const (
-	scriptScale = 0.7
+	scriptScale = 0.8  // never below MinFontSize
 	supRaise    = 0.42 // of the base size
 	subDrop     = 0.18
 )
@@ -85,7 +85,7 @@ func (h scriptText) Lines(txt string) []string {
 func (h scriptText) face(fnt font.Font, level int) *font.Face {
 	size := fnt.Size
 	if level != 0 {
-		size = vg.Length(float64(size) * scriptScale)
+		size = max(vg.Length(float64(size)*scriptScale), vg.Points(MinFontSize))
 	}
 	f := h.Fonts.Lookup(fnt, size)
 	return &f
