@@ -243,7 +243,7 @@ func (r *Results) studyFigures() []report.Figure {
 
 // figureVersion salts the content hash of a figure: bump it when the
 // drawing code changes what the same arrays look like.
-const figureVersion = "figures v2 (column width, script labels, legend placement, pdf)"
+const figureVersion = "figures v3 (column width, script labels, legend placement, pdf with fixed dates)"
 
 // writeFigures renders every figure as PNG, SVG and PDF into
 // outDir/figures and returns them with their SVG bytes for the report. A

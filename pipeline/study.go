@@ -184,7 +184,7 @@ func LoadStudy(path string, sets []string) (*Study, error) {
 func ParseStudy(path string, data []byte, sets []string) (*Study, error) {
 	st := Defaults()
 	probs := &Problems{File: path}
-	md, err := toml.Decode(string(data), &st)
+	md, err := decodeAll(string(data), &st, probs)
 	if err != nil {
 		var pe toml.ParseError
 		if errors.As(err, &pe) {
@@ -194,11 +194,11 @@ func ParseStudy(path string, data []byte, sets []string) (*Study, error) {
 		}
 		return nil, probs
 	}
-	for _, k := range md.Undecoded() {
-		probs.add(k.String(), "unknown key")
-	}
 	if !md.IsDefined("model") {
 		probs.add("model", "the [model] table is required")
+	}
+	if len(probs.List) > 0 {
+		return nil, probs // type errors make the values below meaningless
 	}
 	for _, s := range sets {
 		if err := applySet(&st, s); err != nil {

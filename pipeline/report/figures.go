@@ -8,6 +8,7 @@ import (
 	"fmt"
 	"image/color"
 	"math"
+	"regexp"
 	"strconv"
 
 	"gonum.org/v1/plot"
@@ -400,8 +401,16 @@ func (f *Figure) Render(format string) (out []byte, err error) {
 	if _, err := cv.WriteTo(&buf); err != nil {
 		return nil, err
 	}
+	if format == "pdf" {
+		return pdfDates.ReplaceAll(buf.Bytes(), []byte("${1}(D:19700101000000)")), nil
+	}
 	return buf.Bytes(), nil
 }
+
+// pdfDates matches the creation and modification dates that the PDF
+// writer takes from the clock; they are fixed (same length, so the
+// cross-reference offsets stay valid) to keep outputs bit-identical.
+var pdfDates = regexp.MustCompile(`(/(?:CreationDate|ModDate) )\(D:[0-9]{14}\)`)
 
 // PanelLayout is where a panel put its legend and its data, in canvas
 // coordinates (points from the lower left corner).
