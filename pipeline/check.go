@@ -90,6 +90,47 @@ func Evaluate(st *Study, res *Results) ([]Outcome, error) {
 	return out, nil
 }
 
+// checkExpectTargets checks, before anything runs, that every
+// expectation names a branch, β, grid point and magnetization the study has.
+func checkExpectTargets(st *Study, p *Plan) error {
+	res := &Results{Plan: p}
+	grid := stages.TransformParams{ThetaMin: st.Transform.ThetaMin, ThetaMax: st.Transform.ThetaMax, Points: st.Transform.ThetaPoints}.Grid()
+	for i, e := range st.Expect {
+		key := fmt.Sprintf("expect[%d] (%s)", i, e.Quantity)
+		if e.Quantity == "theta_c" || e.Quantity == "exponent" {
+			if e.Beta == nil {
+				return fmt.Errorf("%s: needs beta", key)
+			}
+			found := false
+			for _, sn := range p.Scaling {
+				found = found || sn.Beta == *e.Beta
+			}
+			if !found {
+				return fmt.Errorf("%s: no beta %v in the study", key, *e.Beta)
+			}
+			continue
+		}
+		b, err := findBranch(res, e)
+		if err != nil {
+			return fmt.Errorf("%s: %v", key, err)
+		}
+		switch e.Quantity {
+		case "sign", "im_m":
+			if e.Theta == nil || gridIndex(grid, *e.Theta) < 0 {
+				return fmt.Errorf("%s: theta must be a grid point of the study", key)
+			}
+		case "ln_rho":
+			if e.M == nil || *e.M < -b.N || *e.M > b.N || (*e.M+b.N)%2 != 0 {
+				return fmt.Errorf("%s: M must be a magnetization of the %d-site lattice", key, b.N)
+			}
+		}
+		if e.Exact && b.Exact == nil && e.Quantity != "reach" {
+			return fmt.Errorf("%s: branch %s has no exact reference", key, b.Branch.Dir())
+		}
+	}
+	return nil
+}
+
 func findBranch(res *Results, e ExpectSpec) (*BranchNodes, error) {
 	for _, b := range res.Plan.Branches {
 		if e.Branch != "" {
@@ -204,7 +245,7 @@ func lookup(st *Study, res *Results, e ExpectSpec) (measured, string, error) {
 		}
 		name += fmt.Sprintf(" M=%d", *e.M)
 		m := measured{sv.LnRho[k], sv.LnRhoErr[k], nan}
-		if ex != nil {
+		if ex != nil && ex.LnRho != nil {
 			m.exact = ex.LnRho[k]
 		}
 		return m, name, nil

@@ -125,8 +125,25 @@ func (e *env) newFlagSet(name, usage string) *flag.FlagSet {
 	fs.Usage = func() {
 		fmt.Fprint(fs.Output(), usage)
 		fs.PrintDefaults()
+		fmt.Fprintln(fs.Output(), "\nA flag given twice takes its last value (--set accumulates).")
 	}
 	return fs
+}
+
+// writable checks that files can be created in dir (creating dir), by
+// writing and removing a probe file: a read-only cache or an output folder
+// under a file fails here, before any work.
+func writable(dir string) error {
+	if err := os.MkdirAll(dir, 0o777); err != nil {
+		return err
+	}
+	f, err := os.CreateTemp(dir, ".strata-probe-*")
+	if err != nil {
+		return err
+	}
+	name := f.Name()
+	f.Close()
+	return os.Remove(name)
 }
 
 // register adds the flags every study command accepts.
@@ -209,11 +226,35 @@ func (e *env) studyCommand(cmd string, args []string) int {
 	if done {
 		return code
 	}
+	if f.jobs < 1 {
+		fmt.Fprintf(e.stderr, "strata %s: --jobs %d: must be ≥ 1\n", cmd, f.jobs)
+		return ExitUsage
+	}
+	if f.shard != "" && f.stages != stages.SampleStage {
+		fmt.Fprintf(e.stderr, "strata %s: --shard runs sample shards only: give --stages sample (got %q)\n", cmd, f.stages)
+		return ExitUsage
+	}
 	st, code, ok := e.loadStudy(cmd, pos, &f)
 	if !ok {
 		return code
 	}
 	path := pos[0]
+	if cmd == "run" || cmd == "check" {
+		if err := writable(f.cacheDir); err != nil {
+			fmt.Fprintf(e.stderr, "strata %s: the cache %s is not writable: %v\n", cmd, f.cacheDir, err)
+			return ExitUsage
+		}
+		if f.shard == "" {
+			if err := writable(filepath.Dir(filepath.Clean(f.outDir))); err != nil {
+				fmt.Fprintf(e.stderr, "strata %s: cannot write the outputs under %s: %v\n", cmd, f.outDir, err)
+				return ExitUsage
+			}
+			if fi, err := os.Stat(f.outDir); err == nil && !fi.IsDir() {
+				fmt.Fprintf(e.stderr, "strata %s: --out %s is a file, not a folder\n", cmd, f.outDir)
+				return ExitUsage
+			}
+		}
+	}
 	if f.refresh {
 		if f.baseline == "" {
 			fmt.Fprintln(e.stderr, "strata check: --refresh-baseline needs --baseline FILE")
@@ -233,6 +274,12 @@ func (e *env) studyCommand(cmd string, args []string) int {
 		return ExitFail
 	}
 	plan := BuildPlan(st)
+	if cmd == "check" {
+		if err := checkExpectTargets(st, plan); err != nil {
+			fmt.Fprintf(e.stderr, "strata check: bad expectation: %v\n", err)
+			return ExitUsage
+		}
+	}
 	runner := &Runner{Cache: c, Jobs: f.jobs, Log: e.stderr, Live: isTerminal(e.stderr), outputHook: e.outputHook}
 	if f.stages != "" {
 		runner.Only = map[string]bool{}

@@ -54,8 +54,14 @@ func (e *env) exactCommand(args []string) int {
 	if !(*beta >= 0) || math.IsInf(*beta, 0) {
 		probs = append(probs, "--beta must be given, finite and ≥ 0")
 	}
-	if !(*tmin >= 0 && *tmax <= math.Pi/2 && *tmax > *tmin) || *pts < 2 {
-		probs = append(probs, "need 0 ≤ theta-min < theta-max ≤ π/2 and theta-points ≥ 2")
+	if !(*tmin >= 0 && *tmax <= math.Pi/2 && *tmax > *tmin) || *pts < 2 || *pts > 1000001 {
+		probs = append(probs, "need 0 ≤ theta-min < theta-max ≤ π/2 and 2 ≤ theta-points ≤ 1000001")
+	}
+	if *bits < 256 || *bits > 1<<20 {
+		probs = append(probs, fmt.Sprintf("--max-bits %d must be in 256..%d", *bits, 1<<20))
+	}
+	if *l > 1<<24 {
+		probs = append(probs, fmt.Sprintf("--size %d exceeds %d", *l, 1<<24))
 	}
 	kind := ""
 	if len(probs) == 0 {
@@ -110,13 +116,30 @@ func (e *env) exactCommand(args []string) int {
 	if ex.RelErr > 0 {
 		inputs = fmt.Sprintf("rho relative error ≤ %s, sign NaN where |sign| < %s", g(ex.RelErr), g(ex.RelErr/stages.SupportedDigits))
 	}
-	fmt.Fprintf(e.stdout, "# precision: first_zero ± %s, ln_rho ± %s (absolute); %s\n", g(float64(ex.FirstZeroErr)), g(maxErr), inputs)
+	lnRho := fmt.Sprintf("ln_rho ± %s (absolute)", g(maxErr))
+	if ex.LnRho == nil {
+		lnRho = fmt.Sprintf("no ρ(M) table above N = %d (closed forms only)", stages.MaxRingTable)
+	}
+	fmt.Fprintf(e.stdout, "# precision: first_zero ± %s, %s; %s\n", g(float64(ex.FirstZeroErr)), lnRho, inputs)
 	if *d == 1 {
 		fmt.Fprintf(e.stdout, "# lee_yang_edge %s\n", g(math.Asin(math.Exp(-2**beta))))
 	}
 	tp := stages.TransformParams{ThetaMin: *tmin, ThetaMax: *tmax, Points: *pts, MaxBits: *bits}
 	grid := tp.Grid()
 	sign, imm := stages.ExactOnGrid(&ex, grid, *bits)
+	nan := 0
+	for _, v := range sign {
+		if math.IsNaN(float64(v)) {
+			nan++
+		}
+	}
+	if nan == len(sign) {
+		fmt.Fprintf(e.stderr, "strata exact: no grid point is computable to the stated precision (raise --max-bits or the inputs' precision)\n")
+		return ExitFail
+	}
+	if nan > 0 {
+		fmt.Fprintf(e.stdout, "# nan: %d of %d grid points, where |sign| is below what the precision supports\n", nan, len(sign))
+	}
 	fmt.Fprint(e.stdout, string(csvTable([]string{"theta", "sign_exact", "im_m_exact"},
 		[][]float64{grid, stages.Floats(sign), stages.Floats(imm)})))
 	return ExitOK

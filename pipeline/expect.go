@@ -1,6 +1,9 @@
 package pipeline
 
-import "fmt"
+import (
+	"fmt"
+	"math"
+)
 
 // Quantities an expectation may name.
 var expectQuantities = map[string]bool{"first_zero": true, "reach": true, "sign": true, "im_m": true,
@@ -15,8 +18,13 @@ func (st *Study) validateExpect(p *Problems) {
 		if (e.Value == nil) == !e.Exact {
 			p.add(key, "give exactly one of value or exact = true")
 		}
-		if e.Sigma < 0 || e.Tolerance < 0 || (e.Sigma == 0 && e.Tolerance == 0) {
-			p.add(key, "give sigma > 0 or tolerance > 0")
+		if e.Sigma < 0 || e.Tolerance < 0 || (e.Sigma == 0 && e.Tolerance == 0) || math.IsNaN(e.Sigma+e.Tolerance) || math.IsInf(e.Sigma+e.Tolerance, 0) {
+			p.add(key, "give a finite sigma > 0 or tolerance > 0")
+		}
+		for name, v := range map[string]*float64{"value": e.Value, "beta": e.Beta, "theta": e.Theta} {
+			if v != nil && (math.IsNaN(*v) || math.IsInf(*v, 0)) {
+				p.add(key+"."+name, "%v must be finite", *v)
+			}
 		}
 	}
 }

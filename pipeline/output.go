@@ -286,24 +286,36 @@ func (t *table) add(name string, c []float64) {
 func (r *Results) branchTables(b *BranchNodes) map[string]*table {
 	out := map[string]*table{}
 	ex := r.Exact[b]
-	if s := r.Stitch[b]; s != nil {
-		ms := make([]float64, len(s.M))
-		for i, m := range s.M {
-			ms[i] = float64(m)
+	if ex != nil && ex.LnRho == nil {
+		ex = nil // a ring too large for the exact ρ(M) table
+	}
+	// ratios.csv from the ratios stage itself, so that a run stopped there
+	// (--stages sample,ratios) still writes it
+	if q := r.Ratios[b]; q != nil {
+		n := q.N
+		var ms, lr, le, tau []float64
+		for _, x := range q.Result.Ratios {
+			ms = append(ms, float64(x.M))
+			lr = append(lr, x.LnR)
+			le = append(le, x.Err)
+			tau = append(tau, x.Tau)
 		}
 		t := &table{name: "ratios.csv"}
 		t.add("M", ms)
-		t.add("ln_ratio", s.LnRatio)
-		t.add("ln_ratio_err", s.LnRatioErr)
-		t.add("tau_int", s.Tau)
+		t.add("ln_ratio", lr)
+		t.add("ln_ratio_err", le)
+		t.add("tau_int", tau)
 		if ex != nil {
-			e := make([]float64, len(s.M))
-			for i, m := range s.M {
-				e[i] = ex.LnRho[(m+s.N)/2] - ex.LnRho[(m-2+s.N)/2]
+			e := make([]float64, len(ms))
+			for i, m := range ms {
+				k := (int(m) + n) / 2
+				e[i] = ex.LnRho[k] - ex.LnRho[k-1]
 			}
 			t.add("ln_ratio_exact", e)
 		}
 		out["ratios"] = t
+	}
+	if s := r.Stitch[b]; s != nil {
 		all := make([]float64, s.N+1)
 		for k := range all {
 			all[k] = float64(2*k - s.N)

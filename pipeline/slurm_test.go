@@ -16,7 +16,7 @@ import (
 // The snapshot a cluster run stores reloads to the same study: same
 // canonical form, same node keys.
 func TestSnapshotRoundTrip(t *testing.T) {
-	st, err := ParseStudy("s.toml", []byte(tinyExpect), []string{"model.sizes=[6,8,10]", "scaling.exponent=2", "fit.enabled=true"})
+	st, err := ParseStudy("s.toml", []byte(tinyExpect), []string{"model.sizes=[6,8,10]", "scaling.exponent=2", "fit.enabled=true", "fit.degrees=[2,4,6]"})
 	if err != nil {
 		t.Fatal(err)
 	}

@@ -11,11 +11,14 @@ import (
 	"sort"
 	"strconv"
 	"strings"
+	"unicode"
+	"unicode/utf8"
 
 	"github.com/BurntSushi/toml"
 
 	"strata/cache"
 	"strata/stages"
+	"strata/stages/polyfit"
 	"strata/stages/ratio"
 )
 
@@ -262,6 +265,8 @@ func applySet(st *Study, s string) error {
 func (st *Study) validate(p *Problems) {
 	if st.Name == "" || strings.ContainsAny(st.Name, `/\`) || strings.Contains(st.Name, "..") || st.Name == "." {
 		p.add("name", "%q must be a plain folder name (no path separators, no \"..\")", st.Name)
+	} else if len(st.Name) > maxNameLen || strings.IndexFunc(st.Name, unicode.IsControl) >= 0 || !utf8.ValidString(st.Name) {
+		p.add("name", "%q must be valid text of at most %d bytes without control characters", st.Name, maxNameLen)
 	}
 	m := st.Model
 	if m.Dimension < 1 || m.Dimension > 3 {
@@ -296,6 +301,15 @@ func (st *Study) validate(p *Problems) {
 		seenB[b] = true
 	}
 	s := st.Sample
+	if s.Sweeps > maxSweeps {
+		p.add("sample.sweeps", "%d exceeds the limit of %d sweeps per sector", s.Sweeps, maxSweeps)
+	}
+	if s.ChunkSweeps > maxSweeps {
+		p.add("sample.chunk_sweeps", "%d exceeds the limit of %d", s.ChunkSweeps, maxSweeps)
+	}
+	if s.Thermalization > maxSweeps {
+		p.add("sample.thermalization", "%d exceeds the limit of %d", s.Thermalization, maxSweeps)
+	}
 	if s.Sweeps < 1000 {
 		p.add("sample.sweeps", "%d is below the minimum of 1000 measured sweeps per sector", s.Sweeps)
 	}
@@ -312,11 +326,16 @@ func (st *Study) validate(p *Problems) {
 	if !okEst {
 		p.add("sample.estimator", "%q is not one of %s", s.Estimator, strings.Join(ratio.Estimators, ", "))
 	}
-	if st.Ratios.MinTauRatio < 0 || st.Ratios.WarnTauRatio < 0 {
-		p.add("ratios", "min_tau_ratio and warn_tau_ratio must be ≥ 0")
+	for _, kv := range []struct {
+		k string
+		v float64
+	}{{"ratios.min_tau_ratio", st.Ratios.MinTauRatio}, {"ratios.warn_tau_ratio", st.Ratios.WarnTauRatio}} {
+		if !(kv.v >= 0) || math.IsInf(kv.v, 0) {
+			p.add(kv.k, "%v must be finite and ≥ 0", kv.v)
+		}
 	}
-	if st.Stitch.Replicas < 2 {
-		p.add("stitch.replicas", "%d must be ≥ 2", st.Stitch.Replicas)
+	if st.Stitch.Replicas < 2 || st.Stitch.Replicas > maxReplicas {
+		p.add("stitch.replicas", "%d must be in 2..%d", st.Stitch.Replicas, maxReplicas)
 	}
 	if st.Exact.MaxBits < 256 {
 		p.add("exact.max_bits", "%d must be ≥ 256", st.Exact.MaxBits)
@@ -342,8 +361,8 @@ func (st *Study) validate(p *Problems) {
 	if t.ThetaPoints < 2 || t.ThetaPoints > 1000001 {
 		p.add("transform.theta_points", "%d must be in 2..1000001", t.ThetaPoints)
 	}
-	if !(t.ReachFactor > 0) {
-		p.add("transform.reach_factor", "%v must be > 0", t.ReachFactor)
+	if !(t.ReachFactor > 0) || math.IsInf(t.ReachFactor, 0) {
+		p.add("transform.reach_factor", "%v must be finite and > 0", t.ReachFactor)
 	}
 	if !(t.ZeroFraction > 0 && t.ZeroFraction <= 1) {
 		p.add("transform.zero_fraction", "%v must be in (0, 1]", t.ZeroFraction)
@@ -359,8 +378,8 @@ func (st *Study) validate(p *Problems) {
 	default:
 		p.add("scaling.exponent", "%v must be \"free\" or a number", e)
 	}
-	if x, ok := st.Scaling.Exponent.(float64); ok && !(x > 0) {
-		p.add("scaling.exponent", "%v must be > 0", x)
+	if x, ok := st.Scaling.Exponent.(float64); ok && (!(x > 0) || math.IsInf(x, 0)) {
+		p.add("scaling.exponent", "%v must be finite and > 0", x)
 	}
 	if st.Scaling.MinSize < 0 {
 		p.add("scaling.min_size", "%d must be ≥ 0", st.Scaling.MinSize)
@@ -376,6 +395,22 @@ func (st *Study) validate(p *Problems) {
 			p.add("fit.degrees", "%d must be in 1..64", d)
 		}
 	}
+	if st.Fit.Enabled && len(p.List) == 0 {
+		// a polynomial needs more points than coefficients on every size
+		for _, l := range m.Sizes {
+			n := sitesOf(m.Dimension, l)
+			points := n - n/2 + 1 // ln ρ on k = ⌊N/2⌋ … N, as the fit stage takes it
+			if st.Fit.Target == polyfit.LnRatio {
+				points = n / 2 // r(M) for M = N, N−2, … > 1
+			}
+			for _, d := range st.Fit.Degrees {
+				if coeffs := len(polyfit.Powers(st.Fit.Target, d)); coeffs > points {
+					p.add("fit.degrees", "degree %d has %d coefficients, more than the %d points of L = %d", d, coeffs, points, l)
+				}
+			}
+		}
+	}
+	st.validateLimits(p)
 	r := st.Routes
 	if r.MaxOrder < 4 || r.MaxOrder > 40 {
 		p.add("routes.max_order", "%d must be in 4..40 (a leading-zero estimate needs four cumulants)", r.MaxOrder)
@@ -394,6 +429,54 @@ func (st *Study) validate(p *Problems) {
 		seenH[h] = true
 	}
 	st.validateExpect(p)
+}
+
+// Hard limits, checked at load by every command (plan included), so that
+// no input can exhaust memory or overflow a count before any work starts.
+const (
+	maxNameLen     = 128
+	maxSweeps      = 1 << 40
+	maxReplicas    = 100000
+	maxShards      = 10_000_000
+	maxCurveValues = 50_000_000  // replicas × θ points (each a float64, several curves)
+	maxDensityVals = 100_000_000 // replicas × (N+1), the stitched replicas
+)
+
+func sitesOf(d, l int) int {
+	n := 1
+	for i := 0; i < d; i++ {
+		n *= l
+	}
+	return n
+}
+
+// validateLimits refuses studies whose shard count or replica arrays
+// exceed the hard limits; the numbers are in the message.
+func (st *Study) validateLimits(p *Problems) {
+	if len(p.List) > 0 {
+		return // the counts below assume valid sizes and sweeps
+	}
+	var shards, maxN int64
+	perSector := int64(st.Chunks())
+	for _, l := range st.Model.Sizes {
+		n := int64(sitesOf(st.Model.Dimension, l))
+		maxN = max(maxN, n)
+		shards += int64(len(ratio.Sectors(st.Sample.Estimator, int(n)))) * perSector * int64(len(st.Model.Betas))
+		if shards > maxShards {
+			break
+		}
+	}
+	if shards > maxShards {
+		p.add("sample.sweeps", "the study needs more than %d shards (sizes %v, %d chunks of %d sweeps per sector); raise chunk_sweeps or lower sweeps or sizes",
+			maxShards, st.Model.Sizes, perSector, st.Sample.ChunkSweeps)
+	}
+	r := int64(st.Stitch.Replicas)
+	if v := r * int64(st.Transform.ThetaPoints); v > maxCurveValues {
+		p.add("stitch.replicas", "%d replicas × %d θ points = %d values exceeds the limit of %d", r, st.Transform.ThetaPoints, v, maxCurveValues)
+	}
+	if v := r * (maxN + 1); v > maxDensityVals {
+		p.add("stitch.replicas", "%d replicas × %d magnetizations = %d values exceeds the limit of %d", r, maxN+1, v, maxDensityVals)
+	}
 }
 
 // Chunks returns the number of chunks per sector: sweeps rounded up to

@@ -136,6 +136,11 @@ type ExactOut struct {
 	Density *exact.Density `json:",omitempty"`
 }
 
+// MaxRingTable bounds the ring's exact ρ(M) table (its domain sum costs
+// O(N²)); larger rings keep the closed-form sign, Im m and zeros, which
+// cost O(1) per θ, and have no ln_rho_exact column.
+const MaxRingTable = 4096
+
 // Exact reference kinds.
 const (
 	ExactRing    = "ring"
@@ -240,8 +245,10 @@ func Exact(d, l int, beta float64, kind string) Task {
 			out := ExactOut{Kind: kind, D: d, N: lat.N, Beta: beta}
 			switch kind {
 			case ExactRing:
-				out.LnRho = exact.RingLnRho(lat.N, beta)
-				out.LnRhoErr = exact.RingLnRhoErr(lat.N, beta)
+				if lat.N <= MaxRingTable {
+					out.LnRho = exact.RingLnRho(lat.N, beta)
+					out.LnRhoErr = exact.RingLnRhoErr(lat.N, beta)
+				}
 				z := exact.RingFirstZero(lat.N, beta)
 				out.FirstZero = NullableFloat(z)
 				out.FirstZeroErr = NullableFloat(8 * epsilon / math.Sin(z)) // acos of a few-ulp argument

@@ -114,6 +114,9 @@ func Routes(p RoutesParams) Task {
 				if err := decode(inputs[2], ex); err != nil {
 					return nil, err
 				}
+				if ex.LnRho == nil {
+					ex = nil // no exact ρ(M) table (a very large ring)
+				}
 			}
 			return encode(evalRoutes(p, &s, &tr, ex))
 		},

@@ -85,29 +85,40 @@ func RingFirstZero(n int, beta float64) float64 {
 // of the N-site ring from the transfer matrix
 // T = [[e^{β+h}, e^{−β}], [e^{−β}, e^{β−h}]] at h = iθ:
 // λ± = e^β cos θ ± √(e^{−2β} − e^{2β} sin²θ), Z = λ₊^N + λ₋^N (Baxter ch. 2).
-// Both are computed from eigenvalue ratios, so nothing overflows and there
-// is no cancellation beyond that of the two terms themselves.
+// Everything is divided by e^β first (λ±/e^β = cos θ ± √(e^{−4β} − sin²θ),
+// λ₊(0)/e^β = 1 + e^{−2β}) and raised to the N-th power as eigenvalue
+// ratios, so nothing overflows at any β or N and there is no cancellation
+// beyond that of the two terms themselves.
 func RingSign(n int, beta, theta float64) (sign, imM float64) {
-	eb := math.Exp(beta)
+	q := math.Exp(-2 * beta) // e^{−2β}
 	sn, cs := math.Sincos(theta)
-	root := cmplx.Sqrt(complex(math.Exp(-2*beta)-eb*eb*sn*sn, 0))
-	lp := complex(eb*cs, 0) + root
-	lm := complex(eb*cs, 0) - root
-	l0 := eb + 1/eb // λ₊ at θ = 0
+	root := cmplx.Sqrt(complex(q*q-sn*sn, 0))
+	lp := complex(cs, 0) + root
+	lm := complex(cs, 0) - root
+	l0 := 1 + q // λ₊(0)/e^β
 	qp, qm := lp/complex(l0, 0), lm/complex(l0, 0)
 	fn := complex(float64(n), 0)
 	z := cmplx.Pow(qp, fn) + cmplx.Pow(qm, fn)
-	z0 := 1 + math.Pow((eb-1/eb)/l0, float64(n))
+	z0 := 1 + math.Pow((1-q)/l0, float64(n))
 	sign = real(z) / z0
-	// λ±' = −e^β sin θ ∓ e^{2β} sin θ cos θ / root
+	// (λ±/e^β)' = −sin θ ∓ sin θ cos θ / root
 	var dp, dm complex128
 	if root != 0 {
-		d := complex(eb*eb*sn*cs, 0) / root
-		dp = complex(-eb*sn, 0) - d
-		dm = complex(-eb*sn, 0) + d
+		d := complex(sn*cs, 0) / root
+		dp = complex(-sn, 0) - d
+		dm = complex(-sn, 0) + d
 	}
-	fn1 := complex(float64(n-1), 0)
-	dz := cmplx.Pow(qp, fn1)*dp/complex(l0, 0) + cmplx.Pow(qm, fn1)*dm/complex(l0, 0)
-	imM = -real(dz / z)
+	// ∂_θ ln Z = (λ₊^{N−1}λ₊' + λ₋^{N−1}λ₋')N/Z; written with r = λ_small/λ_big
+	// so that it does not underflow where Z does (|r| ≤ 1)
+	big, small, dbig, dsmall := lp, lm, dp, dm
+	if cmplx.Abs(lm) > cmplx.Abs(lp) {
+		big, small, dbig, dsmall = lm, lp, dm, dp
+	}
+	rn := cmplx.Pow(small/big, fn)
+	dlnz := (dbig/big + rn*dsmall/small) / (1 + rn)
+	if small == 0 {
+		dlnz = dbig / big
+	}
+	imM = -real(dlnz)
 	return sign, imM
 }

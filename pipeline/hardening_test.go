@@ -1,0 +1,129 @@
+package pipeline
+
+import (
+	"os"
+	"path/filepath"
+	"strings"
+	"testing"
+	"time"
+)
+
+// Bad input is refused at load, by every command (plan included), with the
+// file, the key and the reason, and before any work (exit 2).
+func TestBadInputRefusedUpFront(t *testing.T) {
+	dir := t.TempDir()
+	study := writeStudy(t, dir, "tiny.toml", tinyStudy)
+	cases := []struct {
+		set  string
+		want string // key named in the message
+	}{
+		{"ratios.min_tau_ratio=nan", "ratios.min_tau_ratio"},
+		{"ratios.warn_tau_ratio=inf", "ratios.warn_tau_ratio"},
+		{"transform.reach_factor=nan", "transform.reach_factor"},
+		{"scaling.exponent=inf", "scaling.exponent"},
+		{"sample.sweeps=9223372036854775807", "sample.sweeps"},
+		{"sample.sweeps=1000000000000", "sample.sweeps"}, // 10^9 chunks per sector: too many shards
+		{"stitch.replicas=1000000000", "stitch.replicas"},
+		{"stitch.replicas=90000", "stitch.replicas"}, // × 41 θ points is fine, × 1000001 not
+		{"name=\"a\\u0007b\"", "name"},
+		{"name=\"" + strings.Repeat("x", 200) + "\"", "name"},
+		{"fit.enabled=true", "fit.degrees"}, // default degree 8 has more coefficients than the 4 points of L = 6
+	}
+	for _, c := range cases {
+		args := []string{"plan", study, "--set", c.set}
+		if c.set == "stitch.replicas=90000" {
+			args = append(args, "--set", "transform.theta_points=1000001")
+		}
+		start := time.Now()
+		code, _, stderr := runCLI(t, args...)
+		if code != ExitUsage || !strings.Contains(stderr, c.want) || !strings.Contains(stderr, "tiny.toml") {
+			t.Errorf("--set %s: exit %d, %q (want exit 2 naming %s)", c.set, code, stderr, c.want)
+		}
+		if d := time.Since(start); d > 5*time.Second {
+			t.Errorf("--set %s: refused only after %v", c.set, d)
+		}
+	}
+	// every type error at once
+	bad := writeStudy(t, dir, "bad.toml", "name = 5\n[model]\ndimension = \"two\"\nsizes = [4]\nbetas = 0.3\n[sample]\nsweeps = \"many\"\n")
+	code, _, stderr := runCLI(t, "plan", bad)
+	for _, k := range []string{"name", "model.dimension", "model.betas", "sample.sweeps"} {
+		if code != ExitUsage || !strings.Contains(stderr, "bad.toml: "+k+": wrong type") {
+			t.Errorf("type error of %s not reported: %q", k, stderr)
+		}
+	}
+}
+
+// Command-line mistakes fail before any work with exit 2.
+func TestBadFlagsRefused(t *testing.T) {
+	dir := t.TempDir()
+	study := writeStudy(t, dir, "tiny.toml", tinyStudy+"\n[[expect]]\nbranch = \"L99_beta0.4\"\nquantity = \"first_zero\"\nexact = true\nsigma = 3\n")
+	file := filepath.Join(dir, "afile")
+	if err := os.WriteFile(file, nil, 0o644); err != nil {
+		t.Fatal(err)
+	}
+	cache := filepath.Join(dir, "cache")
+	for _, c := range []struct {
+		args []string
+		want string
+	}{
+		{[]string{"run", study, "--jobs", "0"}, "--jobs"},
+		{[]string{"run", study, "--jobs", "-1"}, "--jobs"},
+		{[]string{"run", study, "--shard", "0/2"}, "--stages sample"},
+		{[]string{"run", study, "--out", filepath.Join(file, "out")}, "cannot write the outputs"},
+		{[]string{"run", study, "--out", file}, "is a file"},
+		{[]string{"run", study, "--cache", filepath.Join(file, "c")}, "not writable"},
+		{[]string{"check", study}, "no branch \"L99_beta0.4\""},
+		{[]string{"exact", "--dimension", "2", "--size", "4", "--beta", "0.3", "--max-bits", "1"}, "--max-bits"},
+		{[]string{"exact", "--dimension", "1", "--size", "8", "--beta", "0.3", "--theta-points", "1000000000"}, "theta-points"},
+	} {
+		args := c.args
+		if c.args[0] != "exact" && !strings.Contains(strings.Join(c.args, " "), "--cache") {
+			args = append(args, "--cache", cache)
+		}
+		if c.args[0] != "exact" && !strings.Contains(strings.Join(c.args, " "), "--out") {
+			args = append(args, "--out", filepath.Join(dir, "out"))
+		}
+		code, _, stderr := runCLI(t, args...)
+		if code != ExitUsage || !strings.Contains(stderr, c.want) {
+			t.Errorf("%v: exit %d, %q (want 2 and %q)", c.args, code, stderr, c.want)
+		}
+	}
+	if entries, _ := os.ReadDir(cache); len(entries) > 0 {
+		t.Errorf("refused commands left %d entries in the cache", len(entries))
+	}
+	_, stdout, _ := runCLI(t, "run", "--help")
+	if !strings.Contains(stdout, "A flag given twice takes its last value") {
+		t.Error("--help does not state the rule for a flag given twice")
+	}
+}
+
+// `--stages sample,ratios` writes ratios.csv for what it computed.
+func TestPartialStagesWriteOutputs(t *testing.T) {
+	dir := t.TempDir()
+	study := writeStudy(t, dir, "tiny.toml", tinyStudy)
+	out := filepath.Join(dir, "out")
+	if code, _, e := runCLI(t, "run", study, "--stages", "sample,ratios", "--out", out); code != 0 {
+		t.Fatal(e)
+	}
+	b, err := os.ReadFile(filepath.Join(out, "L6_beta0.4", "ratios.csv"))
+	if err != nil || !strings.HasPrefix(string(b), "M,ln_ratio,ln_ratio_err,tau_int\n6,") {
+		t.Errorf("ratios.csv after --stages sample,ratios: %v %.80q", err, b)
+	}
+}
+
+// strata exact computes the ring at any β (no overflow of e^{2β}) and a
+// large ring in O(1) per θ, and refuses what it cannot compute.
+func TestExactCommandExtremes(t *testing.T) {
+	code, stdout, stderr := runCLI(t, "exact", "--dimension", "1", "--size", "64", "--beta", "400", "--theta-points", "3", "--theta-max", "0.1")
+	if code != 0 || strings.Contains(stdout, "nan") || !strings.Contains(stdout, "\n0,1,0\n") {
+		t.Errorf("β = 400: exit %d\n%s%s", code, stdout, stderr)
+	}
+	start := time.Now()
+	code, stdout, _ = runCLI(t, "exact", "--dimension", "1", "--size", "200000", "--beta", "0.5", "--theta-points", "101")
+	if code != 0 || strings.Contains(stdout, ",nan") || !strings.Contains(stdout, "no ρ(M) table") {
+		t.Errorf("N = 200000: exit %d\n%.400s", code, stdout)
+	}
+	if d := time.Since(start); d > 5*time.Second {
+		t.Errorf("N = 200000 took %v: the closed forms should cost O(1) per θ", d)
+	}
+}
