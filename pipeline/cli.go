@@ -331,6 +331,9 @@ func (e *env) studyCommand(cmd string, args []string) int {
 	}
 	res, reportPath, err := Materialize(c, plan, ran, f.outDir, studyText)
 	if err != nil {
+		if runErr != nil {
+			fmt.Fprintf(e.stderr, "strata %s: failed:\n%v\n", cmd, runErr)
+		}
 		fmt.Fprintf(e.stderr, "strata %s: writing outputs: %v\n", cmd, err)
 		return ExitFail
 	}

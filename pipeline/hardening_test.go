@@ -1,12 +1,19 @@
 package pipeline
 
 import (
+	"errors"
+	"fmt"
 	"os"
 	"path/filepath"
 	"strings"
+	"syscall"
 	"testing"
 	"time"
+
+	"strata/stages"
 )
+
+func stagesTask(stage string) stages.Task { return stages.Task{Stage: stage} }
 
 // Bad input is refused at load, by every command (plan included), with the
 // file, the key and the reason, and before any work (exit 2).
@@ -125,5 +132,24 @@ func TestExactCommandExtremes(t *testing.T) {
 	}
 	if d := time.Since(start); d > 5*time.Second {
 		t.Errorf("N = 200000 took %v: the closed forms should cost O(1) per θ", d)
+	}
+}
+
+// Many nodes failing for one reason (a full disk) give one line, naming
+// the first nodes; a second cause gets its own line.
+func TestFailuresSummarizedByCause(t *testing.T) {
+	var nodes []*Node
+	for i := 0; i < 265; i++ {
+		n := &Node{Task: stagesTask("sample"), Branch: "L8_beta0.3", Label: fmt.Sprintf("M=%d", i)}
+		n.Err = fmt.Errorf("cache: %w", &os.PathError{Op: "write", Path: fmt.Sprintf("/c/%02x/obj%d", i, i), Err: syscall.ENOSPC})
+		nodes = append(nodes, n)
+	}
+	skipped := &Node{Task: stagesTask("ratios"), Branch: "L8_beta0.3", Err: errors.New("skipped: input sample L8_beta0.3 M=0 failed")}
+	msg := summarizeFailures(append(nodes, skipped))
+	lines := strings.Split(msg, "\n")
+	if len(lines) != 2 || !strings.Contains(lines[0], "265 node(s): no space left on device") ||
+		!strings.Contains(lines[0], "sample L8_beta0.3 M=0") || !strings.Contains(lines[0], "and 262 more") ||
+		!strings.Contains(lines[1], "1 node(s): skipped") {
+		t.Errorf("summary:\n%s", msg)
 	}
 }

@@ -96,20 +96,70 @@ func (r *Runner) Run(p *Plan) error {
 		byLevel[n.level] = append(byLevel[n.level], n)
 	}
 	sort.Ints(levels)
-	var failed []string
+	var failed []*Node
 	for _, lv := range levels {
 		group := byLevel[lv]
 		r.runGroup(group, jobs)
 		for _, n := range group {
 			if n.Err != nil {
-				failed = append(failed, fmt.Sprintf("%s: %v", n.Name(), n.Err))
+				failed = append(failed, n)
 			}
 		}
 	}
 	if len(failed) > 0 {
-		return errors.New(strings.Join(failed, "\n"))
+		return errors.New(summarizeFailures(failed))
 	}
 	return nil
+}
+
+// summarizeFailures prints one line per cause (the innermost error, so that
+// a full disk is one line, not one per node) with the first nodes it hit.
+func summarizeFailures(failed []*Node) string {
+	type cause struct {
+		msg   string
+		nodes []string
+	}
+	var causes []*cause
+	byMsg := map[string]*cause{}
+	for _, n := range failed {
+		msg := rootCause(n.Err)
+		if strings.HasPrefix(n.Err.Error(), "skipped: input") {
+			msg = "skipped: an input failed"
+		}
+		c := byMsg[msg]
+		if c == nil {
+			c = &cause{msg: msg}
+			byMsg[msg] = c
+			causes = append(causes, c)
+		}
+		c.nodes = append(c.nodes, n.Name())
+	}
+	var b strings.Builder
+	for i, c := range causes {
+		if i > 0 {
+			b.WriteByte('\n')
+		}
+		names := c.nodes
+		more := ""
+		if len(names) > 3 {
+			more = fmt.Sprintf(", … and %d more", len(names)-3)
+			names = names[:3]
+		}
+		fmt.Fprintf(&b, "%d node(s): %s (%s%s)", len(c.nodes), c.msg, strings.Join(names, "; "), more)
+	}
+	return b.String()
+}
+
+// rootCause is the innermost wrapped error's message (for an *os.PathError
+// and the like, the reason without the path).
+func rootCause(err error) string {
+	for {
+		u := errors.Unwrap(err)
+		if u == nil {
+			return err.Error()
+		}
+		err = u
+	}
 }
 
 type stageStats struct {
