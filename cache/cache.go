@@ -174,6 +174,27 @@ func (c *Cache) Has(action Key) bool {
 	return err == nil
 }
 
+// TempPrefix is the name prefix of the temp files a process writes before
+// renaming them into place: the PID tells whose they are.
+func TempPrefix(pid int) string { return fmt.Sprintf(".tmp-%d-", pid) }
+
+// RemoveTemps removes the temp files that process pid left in the cache's
+// folders (after an interrupted run: its own, never another writer's) and
+// returns how many it removed.
+func (c *Cache) RemoveTemps(pid int) int {
+	n := 0
+	dirs, _ := filepath.Glob(filepath.Join(c.dir, "??"))
+	for _, d := range dirs {
+		m, _ := filepath.Glob(filepath.Join(d, TempPrefix(pid)+"*"))
+		for _, f := range m {
+			if os.Remove(f) == nil {
+				n++
+			}
+		}
+	}
+	return n
+}
+
 // writeAtomic writes a read-only cache file.
 func writeAtomic(path string, data []byte) error { return WriteFile(path, data, 0o444) }
 
@@ -185,7 +206,7 @@ func WriteFile(path string, data []byte, perm os.FileMode) error {
 	if err := os.MkdirAll(dir, 0o777); err != nil {
 		return fmt.Errorf("cache: %w", err)
 	}
-	f, err := os.CreateTemp(dir, ".tmp-*")
+	f, err := os.CreateTemp(dir, TempPrefix(os.Getpid())+"*")
 	if err != nil {
 		return fmt.Errorf("cache: %w", err)
 	}

@@ -8,11 +8,14 @@ import (
 	"io"
 	"math"
 	"os"
+	"os/signal"
 	"path/filepath"
 	"runtime"
 	"sort"
 	"strconv"
 	"strings"
+	"sync/atomic"
+	"syscall"
 	"text/tabwriter"
 	"time"
 
@@ -314,8 +317,13 @@ func (e *env) studyCommand(cmd string, args []string) int {
 		return e.show(plan, c)
 	}
 	start := time.Now()
+	caught, release := e.catchSignals(runner)
 	runErr := runner.Run(plan)
+	release()
 	ran := runner.Select(plan)
+	if errors.Is(runErr, ErrInterrupted) {
+		return e.interrupted(cmd, caught(), c, ran)
+	}
 	if f.shard != "" {
 		// array tasks write only to the cache
 		if runErr != nil {
@@ -349,6 +357,60 @@ func (e *env) studyCommand(cmd string, args []string) int {
 	}
 	fmt.Fprintf(e.stderr, "done in %.1fs; outputs in %s; report: %s\n", time.Since(start).Seconds(), f.outDir, reportPath)
 	return ExitOK
+}
+
+// catchSignals makes SIGINT and SIGTERM stop the runner instead of killing
+// the process; after the first signal the default action is restored (a
+// second Ctrl-C kills at once). caught reports the signal; release undoes
+// the handler.
+func (e *env) catchSignals(r *Runner) (caught func() os.Signal, release func()) {
+	sigs := make(chan os.Signal, 1)
+	signal.Notify(sigs, os.Interrupt, syscall.SIGTERM)
+	stop, done := make(chan struct{}), make(chan struct{})
+	var got atomic.Value
+	go func() {
+		select {
+		case s := <-sigs:
+			signal.Stop(sigs)
+			got.Store(s)
+			close(stop)
+		case <-done:
+		}
+	}()
+	r.Stop = stop
+	caught = func() os.Signal {
+		s, _ := got.Load().(os.Signal)
+		return s
+	}
+	release = func() {
+		signal.Stop(sigs)
+		close(done)
+	}
+	return caught, release
+}
+
+// interrupted reports an interrupted run, removes this process's temp
+// files from the cache and returns 130 (SIGINT) or 143 (SIGTERM), as a
+// shell does for a process killed by that signal. The output folder is left
+// as the previous complete run wrote it.
+func (e *env) interrupted(cmd string, sig os.Signal, c *cache.Cache, ran []*Node) int {
+	saved, total := 0, 0
+	for _, n := range ran {
+		if n.Task.Stage == stages.SampleStage {
+			total++
+			if c.Has(n.Key) {
+				saved++
+			}
+		}
+	}
+	c.RemoveTemps(os.Getpid())
+	name, code := "SIGINT", 130
+	if sig == syscall.SIGTERM {
+		name, code = "SIGTERM", 143
+	}
+	fmt.Fprintf(e.stderr, "strata %s: interrupted by %s: %d of %d sample shards are saved in the cache; rerun the same command to resume\n",
+		cmd, name, saved, total)
+	return code
 }
 
 func parseShard(s string) (int, int, error) {

@@ -405,18 +405,7 @@ func writeSamples(c *cache.Cache, b *BranchNodes, st *Study, dir string) error {
 		if err := os.MkdirAll(dir, 0o777); err != nil {
 			return err
 		}
-		tmp := base + ".npy.tmp"
-		os.Remove(tmp)
-		if err := os.Link(src, tmp); err != nil {
-			data, rerr := os.ReadFile(src)
-			if rerr != nil {
-				return rerr
-			}
-			if err := os.WriteFile(tmp, data, 0o444); err != nil {
-				return err
-			}
-		}
-		if err := os.Rename(tmp, base+".npy"); err != nil {
+		if err := linkObject(src, base+".npy"); err != nil {
 			return err
 		}
 		meta := map[string]any{
@@ -426,11 +415,51 @@ func writeSamples(c *cache.Cache, b *BranchNodes, st *Study, dir string) error {
 			"study_seed": st.Sample.Seed, "seed": shardSeed(st, b.Branch, sh.M, sh.Chunk),
 			"columns": sampleColumns(st.Sample.Estimator, st.Model.Dimension), "key": n.Key,
 		}
-		if err := writeJSON(base+".json", meta); err != nil {
+		data, err := json.MarshalIndent(meta, "", "  ")
+		if err != nil {
+			return err
+		}
+		if err := writeIfChanged(base+".json", append(data, '\n')); err != nil {
 			return err
 		}
 	}
 	return nil
+}
+
+// linkObject makes dst a hard link to the cache object src (a copy where
+// links are impossible), atomically; nothing is done when dst already is
+// that object (renaming a second link of the same file over it would leave
+// the temp name behind).
+func linkObject(src, dst string) error {
+	if a, err := os.Stat(dst); err == nil {
+		if b, err := os.Stat(src); err == nil && os.SameFile(a, b) {
+			return nil
+		}
+	}
+	tmp := dst + ".tmp"
+	os.Remove(tmp)
+	if err := os.Link(src, tmp); err != nil {
+		data, rerr := os.ReadFile(src)
+		if rerr != nil {
+			return rerr
+		}
+		if err := os.WriteFile(tmp, data, 0o444); err != nil {
+			return err
+		}
+	}
+	if err := os.Rename(tmp, dst); err != nil {
+		os.Remove(tmp)
+		return err
+	}
+	return nil
+}
+
+// writeIfChanged writes path atomically unless it already holds data.
+func writeIfChanged(path string, data []byte) error {
+	if old, err := os.ReadFile(path); err == nil && bytes.Equal(old, data) {
+		return nil
+	}
+	return writeFileAtomic(path, data)
 }
 
 func sampleColumns(estimator string, d int) []string {

@@ -4,6 +4,7 @@ import (
 	"os"
 	"os/exec"
 	"path/filepath"
+	"strings"
 	"syscall"
 	"testing"
 	"time"
@@ -73,5 +74,86 @@ sweeps = 4000
 	}
 	if code, _, _ := runCLI(t, "cache", "verify", "--cache", cacheDir); code != 0 {
 		t.Error("cache damaged by the kill")
+	}
+}
+
+// SIGTERM and SIGINT stop a run cleanly: exit 143 or 130 within a few
+// seconds, a message naming the saved shards, none of the process's temp
+// files left in the cache, no output folder written; the rerun resumes.
+func TestSignalsStopCleanly(t *testing.T) {
+	if testing.Short() {
+		t.Skip("signals a real sampling process; skipped with -short")
+	}
+	for _, c := range []struct {
+		sig  syscall.Signal
+		code int
+	}{{syscall.SIGTERM, 143}, {syscall.SIGINT, 130}} {
+		dir := t.TempDir()
+		study := writeStudy(t, dir, "big.toml", "name = \"big\"\n[model]\ndimension = 2\nsizes = [16]\nbetas = [0.3]\n[sample]\nsweeps = 4000\n")
+		cacheDir, out := filepath.Join(dir, "cache"), filepath.Join(dir, "out")
+		cmd := exec.Command(os.Args[0], "run", study, "--jobs", "2", "--cache", cacheDir, "--out", out)
+		cmd.Env = append(os.Environ(), "STRATA_TEST_AS_MAIN=1")
+		var stderr strings.Builder
+		cmd.Stderr = &stderr
+		if err := cmd.Start(); err != nil {
+			t.Fatal(err)
+		}
+		deadline := time.Now().Add(60 * time.Second)
+		for countIndexEntries(cacheDir) < 10 {
+			if time.Now().After(deadline) {
+				cmd.Process.Kill()
+				t.Fatal("no shards written in 60 s")
+			}
+			time.Sleep(5 * time.Millisecond)
+		}
+		sent := time.Now()
+		cmd.Process.Signal(c.sig)
+		err := cmd.Wait()
+		code := cmd.ProcessState.ExitCode()
+		if err == nil || code != c.code {
+			t.Fatalf("%v: exit %d (%v), want %d; stderr %s", c.sig, code, err, c.code, stderr.String())
+		}
+		if d := time.Since(sent); d > 4*time.Second {
+			t.Errorf("%v: took %v to stop", c.sig, d)
+		}
+		if !strings.Contains(stderr.String(), "rerun the same command to resume") {
+			t.Errorf("%v: stderr %q", c.sig, stderr.String())
+		}
+		temps, _ := filepath.Glob(filepath.Join(cacheDir, "??", ".tmp-*"))
+		if len(temps) > 0 {
+			t.Errorf("%v: temp files left: %v", c.sig, temps)
+		}
+		if _, err := os.Stat(filepath.Join(out, "summary.json")); err == nil {
+			t.Errorf("%v: an interrupted run wrote outputs", c.sig)
+		}
+		if code, _, e := runCLI(t, "run", study, "--stages", "sample", "--cache", cacheDir, "--out", out); code != 0 {
+			t.Fatalf("rerun: %s", e)
+		}
+		if st := statusByStage(readManifest(t, out))["sample"]; st["cached"] < 10 {
+			t.Errorf("%v: the rerun reused only %v", c.sig, st)
+		}
+	}
+}
+
+// Rerunning into an existing output folder leaves no temp file beside the
+// samples and rewrites no unchanged sidecar.
+func TestRerunLeavesNoTemps(t *testing.T) {
+	dir := t.TempDir()
+	study := writeStudy(t, dir, "tiny.toml", tinyStudy)
+	out := filepath.Join(dir, "out")
+	for i := 0; i < 2; i++ {
+		if code, _, e := runCLI(t, "run", study, "--out", out); code != 0 {
+			t.Fatal(e)
+		}
+	}
+	var stray []string
+	filepath.Walk(out, func(p string, info os.FileInfo, err error) error {
+		if err == nil && (strings.HasSuffix(p, ".tmp") || strings.Contains(filepath.Base(p), ".tmp-")) {
+			stray = append(stray, p)
+		}
+		return nil
+	})
+	if len(stray) > 0 {
+		t.Errorf("%d stray temp files after a rerun, e.g. %s", len(stray), stray[0])
 	}
 }

@@ -26,7 +26,15 @@ type Runner struct {
 	ShardI, ShardK int
 	// outputHook (tests only) rewrites computed outputs before storing.
 	outputHook func(stage string, out []byte) []byte
+	// Stop, when closed, ends the run: no node is dispatched after it, and
+	// nodes in flight are waited for at most StopGrace before Run returns
+	// ErrInterrupted (their results are then abandoned).
+	Stop      <-chan struct{}
+	StopGrace time.Duration
 }
+
+// ErrInterrupted is returned by Run when Stop was closed.
+var ErrInterrupted = errors.New("interrupted")
 
 // Select returns the nodes a run must consider, in dependency order.
 func (r *Runner) Select(p *Plan) []*Node {
@@ -99,7 +107,9 @@ func (r *Runner) Run(p *Plan) error {
 	var failed []*Node
 	for _, lv := range levels {
 		group := byLevel[lv]
-		r.runGroup(group, jobs)
+		if !r.runGroup(group, jobs) {
+			return ErrInterrupted
+		}
 		for _, n := range group {
 			if n.Err != nil {
 				failed = append(failed, n)
@@ -167,7 +177,8 @@ type stageStats struct {
 	start                                 time.Time
 }
 
-func (r *Runner) runGroup(group []*Node, jobs int) {
+// runGroup runs one level; it returns false when the run was stopped.
+func (r *Runner) runGroup(group []*Node, jobs int) bool {
 	stats := map[string]*stageStats{}
 	var order []string
 	for _, n := range group {
@@ -209,11 +220,37 @@ func (r *Runner) runGroup(group []*Node, jobs int) {
 			}
 		}()
 	}
+	interrupted := false
+dispatch:
 	for _, n := range group {
-		work <- n
+		select {
+		case work <- n:
+		case <-r.Stop: // a nil channel never fires
+			interrupted = true
+			break dispatch
+		}
 	}
 	close(work)
-	wg.Wait()
+	finished := make(chan struct{})
+	go func() { wg.Wait(); close(finished) }()
+	if !interrupted {
+		select {
+		case <-finished:
+		case <-r.Stop:
+			interrupted = true
+		}
+	}
+	if interrupted {
+		grace := r.StopGrace
+		if grace <= 0 {
+			grace = 2 * time.Second
+		}
+		select { // nodes in flight get a moment to land in the cache
+		case <-finished:
+		case <-time.After(grace):
+		}
+		return false
+	}
 	if r.Live {
 		r.logf("\r%60s\r", "")
 	}
@@ -225,6 +262,7 @@ func (r *Runner) runGroup(group []*Node, jobs int) {
 		}
 		r.logf("%s (%.1fs)\n", line, time.Since(s.start).Seconds())
 	}
+	return true
 }
 
 func fmtSeconds(s float64) string {
