@@ -312,17 +312,35 @@ type GCStats struct {
 }
 
 // GC removes every action entry not in keep whose last use is older than
-// olderThan (0 removes regardless of age), then every output no remaining
-// entry refers to. Stray temp files older than an hour are removed too.
+// olderThan, then every object no remaining entry refers to and that is
+// itself older than olderThan. olderThan is raised to AgeFloor if below.
+// Nothing newer than the start of the oldest live lease is removed (a run
+// in progress writes objects before their entries). Temp files are removed
+// when older than the floor, or when no live lease names their process and
+// they are older than LeaseStale; never a live writer's.
 func (c *Cache) GC(keep map[Key]bool, olderThan time.Duration) (GCStats, error) {
 	var st GCStats
 	now := c.now()
+	olderThan = max(olderThan, AgeFloor)
+	leases := c.liveLeases(now)
+	protectFrom := now.Add(time.Hour) // nothing is protected
+	livePIDs := map[int]bool{}
+	for _, l := range leases {
+		if l.Start.Before(protectFrom) {
+			protectFrom = l.Start
+		}
+		livePIDs[l.PID] = true
+	}
+	removable := func(info fs.FileInfo) bool {
+		t := info.ModTime()
+		return now.Sub(t) >= olderThan && t.Before(protectFrom)
+	}
 	live := map[Key]bool{}
 	err := c.walk(func(path string, k Key, suffix string, info fs.FileInfo) error {
 		if suffix != "-a" {
 			return nil
 		}
-		if !keep[k] && now.Sub(info.ModTime()) >= olderThan {
+		if !keep[k] && removable(info) {
 			if err := os.Remove(path); err == nil {
 				st.Actions++
 			}
@@ -337,7 +355,7 @@ func (c *Cache) GC(keep map[Key]bool, olderThan time.Duration) (GCStats, error) 
 		return st, err
 	}
 	err = c.walk(func(path string, k Key, suffix string, info fs.FileInfo) error {
-		if suffix == "-d" && !live[k] {
+		if suffix == "-d" && !live[k] && removable(info) {
 			if err := os.Remove(path); err == nil {
 				st.Outputs++
 				st.Bytes += info.Size()
@@ -348,9 +366,24 @@ func (c *Cache) GC(keep map[Key]bool, olderThan time.Duration) (GCStats, error) 
 	// temp files left by killed writers
 	matches, _ := filepath.Glob(filepath.Join(c.dir, "??", ".tmp-*"))
 	for _, m := range matches {
-		if info, err := os.Stat(m); err == nil && now.Sub(info.ModTime()) > time.Hour {
+		info, err := os.Stat(m)
+		if err != nil || !info.ModTime().Before(protectFrom) {
+			continue
+		}
+		age := now.Sub(info.ModTime())
+		pid := tempPID(filepath.Base(m))
+		if age >= olderThan || (!livePIDs[pid] && age >= LeaseStale) {
 			os.Remove(m)
 		}
 	}
 	return st, err
+}
+
+// tempPID reads the writer's pid from a temp file name (0 if none).
+func tempPID(name string) int {
+	var pid int
+	if _, err := fmt.Sscanf(strings.TrimPrefix(name, ".tmp-"), "%d-", &pid); err != nil {
+		return 0
+	}
+	return pid
 }

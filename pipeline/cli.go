@@ -283,6 +283,14 @@ func (e *env) studyCommand(cmd string, args []string) int {
 			return ExitUsage
 		}
 	}
+	if cmd == "run" || cmd == "check" {
+		lease, err := c.Acquire()
+		if err != nil {
+			fmt.Fprintf(e.stderr, "strata %s: cannot hold a lease in the cache: %v\n", cmd, err)
+			return ExitFail
+		}
+		defer lease.Release()
+	}
 	runner := &Runner{Cache: c, Jobs: f.jobs, Log: e.stderr, Live: isTerminal(e.stderr), outputHook: e.outputHook}
 	if f.stages != "" {
 		runner.Only = map[string]bool{}
@@ -620,6 +628,13 @@ const cacheUsage = `Usage:
   strata cache ls [--cache DIR]                list objects with sizes and ages
   strata cache gc STUDY.toml... [--cache DIR] [--older-than 30d]
                                                keep what the studies reach, remove the rest
+
+gc never removes anything younger than 24h (--older-than can only raise
+that), nor anything newer than the start of a run in progress: every run
+holds a lease file in <cache>/leases, refreshed every 30 s and dead after
+10 min without refresh, so this holds on a file system shared by cluster
+nodes. Temp files are removed once older than the floor or once their
+writer's lease is dead.
 `
 
 func (e *env) cacheCommand(args []string) int {
@@ -634,7 +649,7 @@ func (e *env) cacheCommand(args []string) int {
 	}
 	fs := e.newFlagSet("cache "+sub, cacheUsage+"\nFlags:\n")
 	dir := fs.String("cache", "", "cache directory (default .strata-cache, or beside the first study, or $STRATA_CACHE)")
-	older := fs.String("older-than", "0s", "gc: remove unreached objects only if unused for this long (e.g. 30d, 12h)")
+	older := fs.String("older-than", "24h", "gc: remove unreached entries and objects only if unused for this long (e.g. 30d); never below the 24h floor")
 	var sets multi
 	fs.Var(&sets, "set", "gc: override a study key when resolving the studies (repeatable)")
 	pos, code, done := e.parse(fs, args[1:])
@@ -691,6 +706,10 @@ func (e *env) cacheCommand(args []string) int {
 		age, err := parseAge(*older)
 		if err != nil {
 			fmt.Fprintf(e.stderr, "strata cache gc: --older-than: %v\n", err)
+			return ExitUsage
+		}
+		if age < cache.AgeFloor {
+			fmt.Fprintf(e.stderr, "strata cache gc: --older-than %s is below the floor of %s, which protects work in progress (it can only be raised)\n", *older, cache.AgeFloor)
 			return ExitUsage
 		}
 		keep := map[cache.Key]bool{}

@@ -153,3 +153,52 @@ func TestFailuresSummarizedByCause(t *testing.T) {
 		t.Errorf("summary:\n%s", msg)
 	}
 }
+
+// gc in a loop during a run, naming another study: the run succeeds, the
+// cache verifies clean, and everything the run wrote is still there.
+func TestGCDuringRun(t *testing.T) {
+	dir := t.TempDir()
+	study := writeStudy(t, dir, "tiny.toml", tinyStudy)
+	other := writeStudy(t, dir, "other.toml", strings.Replace(tinyStudy, "seed = 7", "seed = 8", 1))
+	cacheDir := filepath.Join(dir, "cache")
+	done := make(chan struct{})
+	gcRuns := make(chan int)
+	go func() {
+		n := 0
+		for {
+			select {
+			case <-done:
+				gcRuns <- n
+				return
+			default:
+			}
+			if code, _, e := runCLI(t, "cache", "gc", other, "--cache", cacheDir); code != 0 {
+				t.Errorf("gc: %s", e)
+			}
+			n++
+		}
+	}()
+	code, _, stderr := runCLI(t, "run", study, "--cache", cacheDir, "--out", filepath.Join(dir, "out"), "--jobs", "2")
+	close(done)
+	if n := <-gcRuns; n < 3 {
+		t.Logf("only %d gc passes overlapped the run", n)
+	}
+	if code != 0 {
+		t.Fatalf("run during gc: exit %d: %s", code, stderr)
+	}
+	if code, out, _ := runCLI(t, "cache", "verify", "--cache", cacheDir); code != 0 || !strings.Contains(out, ", 0 damaged") {
+		t.Errorf("verify after gc: %s", out)
+	}
+	if code, _, e := runCLI(t, "run", study, "--cache", cacheDir, "--out", filepath.Join(dir, "out")); code != 0 {
+		t.Fatal(e)
+	}
+	if st := statusByStage(readManifest(t, filepath.Join(dir, "out"))); st["sample"]["computed"] != 0 {
+		t.Errorf("gc removed the run's shards: %v", st)
+	}
+	if code, _, e := runCLI(t, "cache", "gc", other, "--cache", cacheDir, "--older-than", "1h"); code != ExitUsage || !strings.Contains(e, "floor") {
+		t.Errorf("--older-than below the floor: exit %d, %q", code, e)
+	}
+	if leases, _ := filepath.Glob(filepath.Join(cacheDir, "leases", "*.lease")); len(leases) != 0 {
+		t.Errorf("leases left after the runs: %v", leases)
+	}
+}
