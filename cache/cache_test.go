@@ -165,7 +165,7 @@ func TestGCRespectsLiveLeases(t *testing.T) {
 		t.Error("gc removed a live writer's temp file")
 	}
 	stale := now.Add(-LeaseStale - time.Minute)
-	os.Chtimes(l.path, stale, stale) // the holder died
+	os.Chtimes(l.path, stale, stale)      // the holder died
 	os.Chtimes(c.path(k, "-a"), two, two) // Has counted as a use
 	os.Chtimes(c.path(out, "-d"), two, two)
 	if st, _ := c.GC(nil, 0); st.Actions != 1 || st.Outputs != 1 {

@@ -276,6 +276,9 @@ func (r *Results) writeFigures(outDir string) ([]report.Rendered, error) {
 		}
 		key := cache.Sum(content.Bytes()).String()
 		index[f.Name] = key
+		for _, ext := range []string{"svg", "png", "pdf"} {
+			r.record(filepath.Join(dir, f.Name+"."+ext))
+		}
 		svgPath := filepath.Join(dir, f.Name+".svg")
 		if prev[f.Name] == key && exists(filepath.Join(dir, f.Name+".png")) && exists(filepath.Join(dir, f.Name+".pdf")) {
 			if svg, err := os.ReadFile(svgPath); err == nil {
@@ -289,7 +292,7 @@ func (r *Results) writeFigures(outDir string) ([]report.Rendered, error) {
 			if err != nil {
 				return nil, err
 			}
-			if err := writeFileAtomic(filepath.Join(dir, f.Name+"."+format), b); err != nil {
+			if err := writeIfChanged(filepath.Join(dir, f.Name+"."+format), b); err != nil {
 				return nil, err
 			}
 			if format == "svg" {
@@ -302,7 +305,7 @@ func (r *Results) writeFigures(outDir string) ([]report.Rendered, error) {
 	if err != nil {
 		return nil, err
 	}
-	return out, writeFileAtomic(indexPath, b)
+	return out, r.writeFile(indexPath, b)
 }
 
 func exists(path string) bool {
@@ -378,5 +381,5 @@ func (r *Results) writeReport(outDir string, man Manifest, studyText string) (st
 		return "", err
 	}
 	path := filepath.Join(outDir, "report.html")
-	return path, writeFileAtomic(path, html)
+	return path, r.writeFile(path, html)
 }

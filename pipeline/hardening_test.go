@@ -202,3 +202,83 @@ func TestGCDuringRun(t *testing.T) {
 		t.Errorf("leases left after the runs: %v", leases)
 	}
 }
+
+// out/<name> always shows one complete run: a rerun with a new θ grid and a
+// dropped size swaps in a new generation (the dropped branch's files gone,
+// a user's file kept, unchanged files hard-linked rather than rewritten);
+// a rerun that fails while writing leaves the previous generation in place;
+// an output folder from before generations is taken over.
+func TestOutputGenerations(t *testing.T) {
+	dir := t.TempDir()
+	study := writeStudy(t, dir, "tiny.toml", tinyStudy)
+	out, cacheDir := filepath.Join(dir, "out"), filepath.Join(dir, "cache")
+	run := func(sets ...string) (int, string) {
+		args := []string{"run", study, "--out", out, "--cache", cacheDir}
+		for _, s := range sets {
+			args = append(args, "--set", s)
+		}
+		code, _, e := runCLI(t, args...)
+		return code, e
+	}
+	if code, e := run(); code != 0 {
+		t.Fatal(e)
+	}
+	if fi, err := os.Lstat(out); err != nil || fi.Mode()&os.ModeSymlink == 0 {
+		t.Fatalf("%s is not a link to a generation: %v", out, err)
+	}
+	gen1, _ := filepath.EvalSymlinks(out)
+	sidecar := filepath.Join(out, "L6_beta0.4", "samples", "M6_chunk0.json")
+	before, _ := os.Stat(sidecar)
+	os.WriteFile(filepath.Join(out, "notes.txt"), []byte("mine"), 0o644)
+	if code, e := run("model.sizes=[6]", "transform.theta_points=21"); code != 0 {
+		t.Fatal(e)
+	}
+	gen2, _ := filepath.EvalSymlinks(out)
+	if gen2 == gen1 {
+		t.Fatal("no new generation")
+	}
+	if _, err := os.Stat(gen1); err == nil {
+		t.Error("the previous generation was not removed")
+	}
+	if b, err := os.ReadFile(filepath.Join(out, "notes.txt")); err != nil || string(b) != "mine" {
+		t.Error("the user's file was not kept")
+	}
+	if _, err := os.Stat(filepath.Join(out, "L8_beta0.4")); err == nil {
+		t.Error("files of a branch no longer in the study stayed")
+	}
+	if s := readSummary(t, out); len(s.Branches) != 1 {
+		t.Errorf("summary has %d branches", len(s.Branches))
+	}
+	if after, err := os.Stat(sidecar); err != nil || !os.SameFile(before, after) {
+		t.Error("an unchanged sidecar was rewritten instead of linked")
+	}
+	// a failure while writing leaves the current generation untouched
+	man, _ := os.ReadFile(filepath.Join(out, "manifest.json"))
+	os.Remove(filepath.Join(out, "summary.json"))
+	os.Mkdir(filepath.Join(out, "summary.json"), 0o777) // writing summary.json will fail
+	if code, _ := run("transform.theta_points=31"); code == 0 {
+		t.Fatal("the run did not fail")
+	}
+	if now, _ := filepath.EvalSymlinks(out); now != gen2 {
+		t.Errorf("a failed run moved the link to %s", now)
+	}
+	if b, _ := os.ReadFile(filepath.Join(out, "manifest.json")); string(b) != string(man) {
+		t.Error("a failed run changed the visible manifest")
+	}
+	if gens, _ := filepath.Glob(filepath.Join(dir, ".out.gen*")); len(gens) != 1 {
+		t.Errorf("generations left: %v", gens)
+	}
+	// an old-style output folder is taken over
+	legacy := filepath.Join(dir, "legacy")
+	os.MkdirAll(filepath.Join(legacy, "L6_beta0.4"), 0o777)
+	os.WriteFile(filepath.Join(legacy, "mine.txt"), []byte("x"), 0o644)
+	if code, _, e := runCLI(t, "run", study, "--out", legacy, "--cache", cacheDir); code != 0 {
+		t.Fatal(e)
+	}
+	if fi, _ := os.Lstat(legacy); fi.Mode()&os.ModeSymlink == 0 {
+		t.Error("legacy folder not turned into a generation link")
+	}
+	if _, err := os.Stat(filepath.Join(legacy, "mine.txt")); err != nil {
+		t.Error("legacy user file lost")
+	}
+}

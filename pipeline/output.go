@@ -7,6 +7,7 @@ import (
 	"math"
 	"os"
 	"path/filepath"
+	"sort"
 	"strings"
 
 	"strata/cache"
@@ -34,6 +35,9 @@ type Manifest struct {
 	Version   string         `json:"version"`
 	StudyHash cache.Key      `json:"study_hash"`
 	Nodes     []ManifestNode `json:"nodes"`
+	// Files lists every file of the output folder that strata wrote
+	// (relative paths); a later run deletes only files listed here.
+	Files []string `json:"files"`
 }
 
 // BranchSummary is one branch in summary.json.
@@ -96,6 +100,10 @@ type Results struct {
 	Transform map[*BranchNodes]*stages.TransformOut
 	Routes    map[*BranchNodes]*stages.RoutesOut
 	Scaling   map[*ScalingNode]*stages.ScalingOut
+
+	// while writing an output folder: its root and the files written
+	outRoot  string
+	produced map[string]bool
 }
 
 func load[T any](c *cache.Cache, n *Node) (*T, error) {
@@ -220,9 +228,24 @@ func csvTable(header []string, cols [][]float64) []byte {
 // studyText is the study file as given (with any overrides noted); it is
 // shown in the report, whose path is returned.
 func Materialize(c *cache.Cache, p *Plan, ran []*Node, outDir, studyText string) (*Results, string, error) {
-	if err := os.MkdirAll(outDir, 0o777); err != nil {
+	gen, err := newGeneration(outDir)
+	if err != nil {
 		return nil, "", err
 	}
+	res, man, err := materializeInto(c, p, ran, gen.dir, studyText)
+	if err == nil {
+		err = gen.finish(man)
+	}
+	if err != nil {
+		gen.abandon()
+		return nil, "", err
+	}
+	return res, filepath.Join(outDir, "report.html"), nil
+}
+
+// materializeInto writes every output into dir and returns the manifest,
+// whose Files list what was written.
+func materializeInto(c *cache.Cache, p *Plan, ran []*Node, dir, studyText string) (*Results, Manifest, error) {
 	_, hash := p.Study.Canonical()
 	man := Manifest{Tool: "strata", Version: ToolVersion, StudyHash: hash, Nodes: []ManifestNode{}}
 	for _, n := range ran {
@@ -236,27 +259,57 @@ func Materialize(c *cache.Cache, p *Plan, ran []*Node, outDir, studyText string)
 		}
 		man.Nodes = append(man.Nodes, mn)
 	}
-	if err := writeJSON(filepath.Join(outDir, "manifest.json"), man); err != nil {
-		return nil, "", err
-	}
 	res := LoadResults(c, p)
+	res.outRoot, res.produced = dir, map[string]bool{}
 	for _, b := range p.Branches {
-		if err := res.writeBranch(c, b, outDir); err != nil {
-			return nil, "", err
+		if err := res.writeBranch(c, b, dir); err != nil {
+			return nil, man, err
 		}
 	}
 	for _, sn := range p.Scaling {
 		if v := res.Scaling[sn]; v != nil {
-			if err := writeScalingCSV(outDir, v); err != nil {
-				return nil, "", err
+			path, err := writeScalingCSV(dir, v)
+			if err != nil {
+				return nil, man, err
 			}
+			res.record(path)
 		}
 	}
-	if err := writeJSON(filepath.Join(outDir, "summary.json"), res.BuildSummary()); err != nil {
-		return nil, "", err
+	if err := res.writeJSON(filepath.Join(dir, "summary.json"), res.BuildSummary()); err != nil {
+		return nil, man, err
 	}
-	rp, err := res.writeReport(outDir, man, studyText)
-	return res, rp, err
+	if _, err := res.writeReport(dir, man, studyText); err != nil {
+		return nil, man, err
+	}
+	res.record(filepath.Join(dir, "manifest.json"))
+	for f := range res.produced {
+		man.Files = append(man.Files, f)
+	}
+	sort.Strings(man.Files)
+	return res, man, writeJSON(filepath.Join(dir, "manifest.json"), man)
+}
+
+// record notes a file the run wrote (or kept, unchanged) in the output.
+func (r *Results) record(path string) {
+	if r.produced == nil {
+		return
+	}
+	if rel, err := filepath.Rel(r.outRoot, path); err == nil {
+		r.produced[filepath.ToSlash(rel)] = true
+	}
+}
+
+func (r *Results) writeFile(path string, data []byte) error {
+	r.record(path)
+	return writeIfChanged(path, data)
+}
+
+func (r *Results) writeJSON(path string, v any) error {
+	b, err := json.MarshalIndent(v, "", "  ")
+	if err != nil {
+		return err
+	}
+	return r.writeFile(path, append(b, '\n'))
 }
 
 // table is one CSV file: its name, header and columns.
@@ -384,17 +437,17 @@ func (r *Results) writeBranch(c *cache.Cache, b *BranchNodes, outDir string) err
 	tables := r.branchTables(b)
 	for _, key := range []string{"ratios", "density", "transform", "routes", "cumulants"} {
 		if t := tables[key]; t != nil {
-			if err := writeFileAtomic(filepath.Join(dir, t.name), csvTable(t.header, t.cols)); err != nil {
+			if err := r.writeFile(filepath.Join(dir, t.name), csvTable(t.header, t.cols)); err != nil {
 				return err
 			}
 		}
 	}
-	return writeSamples(c, b, r.Plan.Study, filepath.Join(dir, "samples"))
+	return writeSamples(c, b, r.Plan.Study, filepath.Join(dir, "samples"), r.record)
 }
 
 // writeSamples hard-links each cached shard's .npy into dir (copying when
 // links are not possible) and writes its metadata sidecar.
-func writeSamples(c *cache.Cache, b *BranchNodes, st *Study, dir string) error {
+func writeSamples(c *cache.Cache, b *BranchNodes, st *Study, dir string, record func(string)) error {
 	for i, n := range b.Samples {
 		src, err := c.DataPath(n.Key)
 		if err != nil {
@@ -408,6 +461,8 @@ func writeSamples(c *cache.Cache, b *BranchNodes, st *Study, dir string) error {
 		if err := linkObject(src, base+".npy"); err != nil {
 			return err
 		}
+		record(base + ".npy")
+		record(base + ".json")
 		meta := map[string]any{
 			"estimator": st.Sample.Estimator, "beta": b.Branch.Beta, "size": b.Branch.L,
 			"dimension": st.Model.Dimension, "sites": b.N, "magnetization": sh.M, "chunk": sh.Chunk,
@@ -478,7 +533,7 @@ func sampleColumns(estimator string, d int) []string {
 	return []string{"fraction of proposals after which the chain was in sector M"}
 }
 
-func writeScalingCSV(outDir string, v *stages.ScalingOut) error {
+func writeScalingCSV(outDir string, v *stages.ScalingOut) (string, error) {
 	var ls, th, er, ex []float64
 	val := func(p *float64) float64 {
 		if p == nil {
@@ -494,5 +549,5 @@ func writeScalingCSV(outDir string, v *stages.ScalingOut) error {
 	}
 	path := filepath.Join(outDir, "scaling_beta"+stages.F(v.Beta)+".csv")
 	_ = os.MkdirAll(outDir, 0o777)
-	return writeFileAtomic(path, csvTable([]string{"L", "theta1", "theta1_err", "theta1_exact"}, [][]float64{ls, th, er, ex}))
+	return path, writeIfChanged(path, csvTable([]string{"L", "theta1", "theta1_err", "theta1_exact"}, [][]float64{ls, th, er, ex}))
 }

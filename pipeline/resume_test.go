@@ -147,6 +147,7 @@ func TestRerunLeavesNoTemps(t *testing.T) {
 		}
 	}
 	var stray []string
+	out, _ = filepath.EvalSymlinks(out)
 	filepath.Walk(out, func(p string, info os.FileInfo, err error) error {
 		if err == nil && (strings.HasSuffix(p, ".tmp") || strings.Contains(filepath.Base(p), ".tmp-")) {
 			stray = append(stray, p)
