@@ -122,6 +122,13 @@ func (c *Cache) Put(action Key, data []byte) error {
 	return writeAtomic(c.path(action, "-a"), []byte(line))
 }
 
+// Listed reports whether an entry for action exists, without reading or
+// verifying its object (for estimates; Get verifies).
+func (c *Cache) Listed(action Key) bool {
+	_, err := os.Stat(c.path(action, "-a"))
+	return err == nil
+}
+
 func (c *Cache) index(action Key) (out Key, size int64, err error) {
 	b, err := os.ReadFile(c.path(action, "-a"))
 	if errors.Is(err, fs.ErrNotExist) {

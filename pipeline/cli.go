@@ -324,6 +324,13 @@ func (e *env) studyCommand(cmd string, args []string) int {
 	case "show":
 		return e.show(plan, c)
 	}
+	if line, problems := checkResources(EstimatePlan(plan, c, f.jobs), c.Dir()); len(problems) > 0 {
+		fmt.Fprintf(e.stderr, "strata %s: %s\n", cmd, line)
+		for _, pr := range problems {
+			fmt.Fprintf(e.stderr, "strata %s: %s; lower sweeps, replicas or --jobs, or run on a larger machine\n", cmd, pr)
+		}
+		return ExitUsage
+	}
 	start := time.Now()
 	caught, release := e.catchSignals(runner)
 	runErr := runner.Run(plan)
@@ -480,6 +487,12 @@ func (e *env) plan(p *Plan, r *Runner, f studyFlags) int {
 		}
 	}
 	fmt.Fprintf(e.stdout, "%d of %d nodes would run\n", stale, len(nodes))
+	// a login node plans for a cluster: beyond this machine is a warning
+	line, problems := checkResources(EstimatePlan(p, r.Cache, r.Jobs), r.Cache.Dir())
+	fmt.Fprintln(e.stdout, line)
+	for _, pr := range problems {
+		fmt.Fprintf(e.stderr, "strata plan: warning: %s on this machine\n", pr)
+	}
 	return ExitOK
 }
 

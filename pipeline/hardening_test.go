@@ -282,3 +282,32 @@ func TestOutputGenerations(t *testing.T) {
 		t.Error("legacy user file lost")
 	}
 }
+
+// plan always prints the resource estimate and only warns; run refuses an
+// estimate beyond this machine's free memory or disk before any work.
+func TestResourceEstimates(t *testing.T) {
+	dir := t.TempDir()
+	study := writeStudy(t, dir, "tiny.toml", tinyStudy)
+	cacheDir := filepath.Join(dir, "cache")
+	code, stdout, _ := runCLI(t, "plan", study, "--cache", cacheDir)
+	if code != 0 || !strings.Contains(stdout, "estimate: peak memory") || !strings.Contains(stdout, "new cache data") {
+		t.Errorf("plan: exit %d\n%s", code, stdout)
+	}
+	huge := []string{"--set", "sample.sweeps=1000000000000", "--set", "sample.chunk_sweeps=100000000000"}
+	if availableMemory() == 0 && availableDisk(dir) == 0 {
+		t.Skip("this system reports neither free memory nor free disk")
+	}
+	code, stdout, stderr := runCLI(t, append([]string{"plan", study, "--cache", cacheDir}, huge...)...)
+	if code != 0 || !strings.Contains(stderr, "warning") {
+		t.Errorf("plan of a huge study: exit %d, %q", code, stderr)
+	}
+	_ = stdout
+	start := time.Now()
+	code, _, stderr = runCLI(t, append([]string{"run", study, "--cache", cacheDir, "--out", filepath.Join(dir, "out")}, huge...)...)
+	if code != ExitUsage || !strings.Contains(stderr, "exceeds") {
+		t.Errorf("run of a huge study: exit %d, %q", code, stderr)
+	}
+	if time.Since(start) > 5*time.Second {
+		t.Error("the refusal came after work")
+	}
+}

@@ -289,16 +289,28 @@ func (r *Runner) runNode(n *Node) {
 		r.logf("warning: %s: %v; recomputing\n", n.Name(), err)
 	}
 	start := time.Now()
-	inputs := make([][]byte, len(n.Inputs))
-	for i, in := range n.Inputs {
-		b, err := r.Cache.Get(in.Key)
-		if err != nil {
-			n.Err = fmt.Errorf("reading input %s: %v", in.Name(), err)
-			return
+	var out []byte
+	if n.Task.Lazy != nil {
+		// inputs streamed from the cache as the task asks for them
+		out, err = n.Task.Lazy(func(i int) ([]byte, error) {
+			b, err := r.Cache.Get(n.Inputs[i].Key)
+			if err != nil {
+				return nil, fmt.Errorf("reading input %s: %v", n.Inputs[i].Name(), err)
+			}
+			return b, nil
+		})
+	} else {
+		inputs := make([][]byte, len(n.Inputs))
+		for i, in := range n.Inputs {
+			b, err := r.Cache.Get(in.Key)
+			if err != nil {
+				n.Err = fmt.Errorf("reading input %s: %v", in.Name(), err)
+				return
+			}
+			inputs[i] = b
 		}
-		inputs[i] = b
+		out, err = n.Task.Run(inputs)
 	}
-	out, err := n.Task.Run(inputs)
 	if err != nil {
 		n.Err = err
 		return

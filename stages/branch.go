@@ -34,31 +34,45 @@ type RatiosOut struct {
 	Result    ratio.Result
 }
 
-// Ratios returns the task estimating ln r(M) from a branch's shards.
+// Ratios returns the task estimating ln r(M) from a branch's shards. It
+// decodes the shards of one sector at a time (the estimators visit the
+// sectors in turn), so its memory grows with one sector's measurement
+// series, not with the branch's.
 func Ratios(p RatiosParams) Task {
-	return Task{
+	return lazyTask(Task{
 		Stage: RatiosStage, Version: ratiosVersion,
 		Params: []Param{
 			{"beta", F(p.Beta)}, {"dimension", I(p.D)}, {"estimator", p.Estimator},
 			{"min_tau_ratio", F(p.MinTauRatio)}, {"size", I(p.L)}, {"warn_tau_ratio", F(p.WarnTauRatio)},
 		},
-		Run: func(inputs [][]byte) ([]byte, error) {
+		Lazy: func(get func(int) ([]byte, error)) ([]byte, error) {
 			lat, err := lattice.New(p.D, p.L)
 			if err != nil {
 				return nil, err
 			}
+			bySector := map[int][]int{}
+			for i, sh := range p.Shards {
+				bySector[sh.M] = append(bySector[sh.M], i)
+			}
 			in := &ratio.Input{D: p.D, N: lat.N, Beta: p.Beta, Cols: Columns(p.Estimator, p.D),
-				Series: map[int][][]float64{}, MinTauRatio: p.MinTauRatio, WarnTauRatio: p.WarnTauRatio}
-			for i, b := range inputs {
-				data, _, cols, err := DecodeNpy(b)
-				if err != nil {
-					return nil, err
+				MinTauRatio: p.MinTauRatio, WarnTauRatio: p.WarnTauRatio}
+			in.Load = func(m int) ([][]float64, error) {
+				var out [][]float64
+				for _, i := range bySector[m] {
+					b, err := get(i)
+					if err != nil {
+						return nil, err
+					}
+					data, _, cols, err := DecodeNpy(b)
+					if err != nil {
+						return nil, err
+					}
+					if cols != in.Cols {
+						return nil, fmt.Errorf("shard M=%d chunk %d has %d columns, want %d", p.Shards[i].M, p.Shards[i].Chunk, cols, in.Cols)
+					}
+					out = append(out, data)
 				}
-				if cols != in.Cols {
-					return nil, fmt.Errorf("shard M=%d chunk %d has %d columns, want %d", p.Shards[i].M, p.Shards[i].Chunk, cols, in.Cols)
-				}
-				m := p.Shards[i].M
-				in.Series[m] = append(in.Series[m], data)
+				return out, nil
 			}
 			res, err := ratio.Estimate(p.Estimator, in)
 			if err != nil {
@@ -66,7 +80,7 @@ func Ratios(p RatiosParams) Task {
 			}
 			return encode(RatiosOut{D: p.D, N: lat.N, Beta: p.Beta, Estimator: p.Estimator, Result: *res})
 		},
-	}
+	})
 }
 
 // StitchOut is the stitched density of states with its replicas.

@@ -65,6 +65,23 @@ type Task struct {
 	// Run maps the inputs' outputs (in the order the pipeline wired them)
 	// to this task's output.
 	Run func(inputs [][]byte) ([]byte, error)
+	// Lazy, when set, computes the same output fetching input i only when
+	// it needs it (the pipeline then streams inputs from the cache instead
+	// of holding them all); Run must agree with it.
+	Lazy func(get func(i int) ([]byte, error)) ([]byte, error)
+}
+
+// lazyTask fills Run from Lazy for callers that hold the inputs.
+func lazyTask(t Task) Task {
+	t.Run = func(inputs [][]byte) ([]byte, error) {
+		return t.Lazy(func(i int) ([]byte, error) {
+			if i < 0 || i >= len(inputs) {
+				return nil, fmt.Errorf("input %d of %d", i, len(inputs))
+			}
+			return inputs[i], nil
+		})
+	}
+	return t
 }
 
 // F formats a float canonically.

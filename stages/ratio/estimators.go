@@ -187,7 +187,10 @@ func (in *Input) Bennett() (*Result, error) {
 	r := &Result{}
 	idx := map[int]int{}
 	for _, m := range Sectors(Bennett, n) {
-		ch := in.Series[m]
+		ch, err := in.chunks(m)
+		if err != nil {
+			return nil, err
+		}
 		var names []string
 		var series [][][]float64
 		perSweep := func(f func([]float64) float64) [][]float64 {

@@ -65,6 +65,9 @@ type Input struct {
 	Beta   float64
 	Cols   int
 	Series map[int][][]float64
+	// Load, when set, is used instead of Series: it returns the chunks of
+	// chain M on demand, so that only one sector's series is in memory.
+	Load func(m int) ([][]float64, error)
 	// MinTauRatio refuses a variable with fewer than MinTauRatio·τ_int
 	// measurements (Wolff's rule of thumb is about 100); WarnTauRatio warns.
 	MinTauRatio, WarnTauRatio float64
@@ -221,6 +224,13 @@ func (in *Input) appendOddMiddle(r *Result) {
 }
 
 func (in *Input) chunks(m int) ([][]float64, error) {
+	if in.Load != nil {
+		c, err := in.Load(m)
+		if err == nil && len(c) == 0 {
+			err = fmt.Errorf("sector M=%d: no samples", m)
+		}
+		return c, err
+	}
 	c, ok := in.Series[m]
 	if !ok || len(c) == 0 {
 		return nil, fmt.Errorf("sector M=%d: no samples", m)
