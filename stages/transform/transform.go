@@ -140,34 +140,28 @@ func dot2(a, b, c []float64) (float64, float64) {
 
 // SignAt returns sign(θ) at one θ by a direct sum (for root finding).
 func SignAt(n int, lnRho []float64, theta float64) float64 {
-	top := math.Inf(-1)
-	for _, v := range lnRho {
-		top = math.Max(top, v)
-	}
-	z, z0 := 0.0, 0.0
-	for k, v := range lnRho {
-		m := float64(2*k - n)
-		w := math.Exp(v - top)
-		z += w * math.Cos(theta*m)
-		z0 += w
-	}
-	return z / z0
+	return directSum(n, lnRho, func(m float64) float64 { return math.Cos(theta * m) })
 }
 
 // SignSlope returns d sign/dθ = −Σ_M M ρ(M) sin(θM) / Z(0) at one θ.
 func SignSlope(n int, lnRho []float64, theta float64) float64 {
+	return directSum(n, lnRho, func(m float64) float64 { return -m * math.Sin(theta*m) })
+}
+
+// directSum returns Σ_M ρ(M) f(M) / Σ_M ρ(M), with ρ scaled by its
+// largest value.
+func directSum(n int, lnRho []float64, f func(m float64) float64) float64 {
 	top := math.Inf(-1)
 	for _, v := range lnRho {
 		top = math.Max(top, v)
 	}
-	d, z0 := 0.0, 0.0
+	s, z0 := 0.0, 0.0
 	for k, v := range lnRho {
-		m := float64(2*k - n)
 		w := math.Exp(v - top)
-		d -= w * m * math.Sin(theta*m)
+		s += w * f(float64(2*k-n))
 		z0 += w
 	}
-	return d / z0
+	return s / z0
 }
 
 // Curve is the transform of a central ln ρ with errors from replicas.
