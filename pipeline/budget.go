@@ -7,7 +7,6 @@ import (
 
 	"strata/cache"
 	"strata/stages"
-	"strata/stages/exact"
 	"strata/stages/transform"
 )
 
@@ -60,11 +59,8 @@ func (e *env) budgetCommand(args []string) int {
 		curve := &transform.Curve{Theta: tr.Theta, Sign: stages.Floats(tr.Sign), SignErr: stages.Floats(tr.SignErr)}
 		ex := math.NaN()
 		if e := res.Exact[b]; e != nil {
-			if e.Kind == "ring" {
-				ex, _ = exact.RingSign(e.N, e.Beta, *theta)
-			} else {
-				ex, _ = exact.HighPrecision(e.Counts.Rho(e.Beta), e.N, *theta, 1e-12, uint(st.Exact.MaxBits))
-			}
+			s, _ := stages.ExactOnGrid(e, []float64{*theta}, st.Exact.MaxBits)
+			ex = float64(s[0])
 		}
 		p, err := transform.Budget(curve, b.N, float64(tr.Reach), float64(tr.ZeroBracket[0]), float64(tr.ZeroBracket[1]),
 			*theta, sweeps, st.Transform.ReachFactor, ex)

@@ -120,6 +120,10 @@ func TestExactDensityOutputs(t *testing.T) {
 			t.Fatalf("density.csv row %v: ln_rho_exact %q, err %q", r, r[col["ln_rho_exact"]], r[col["ln_rho_exact_err"]])
 		}
 	}
+	// budget reads the transfer-matrix reference too
+	if code, stdout, stderr := runCLI(t, "budget", study, "--cache", cdir, "--theta", "0.05"); code != 0 || !strings.Contains(stdout, "exact") {
+		t.Errorf("budget with a transfer-matrix reference: exit %d\n%s%s", code, stdout, stderr)
+	}
 	code, stdout, stderr := runCLI(t, "exact", "--dimension", "2", "--size", "10", "--beta", "0.3", "--cache", cdir)
 	if code != 0 || strings.Contains(stderr, "computing") {
 		t.Errorf("strata exact --cache did not reuse the study's density: exit %d, %q", code, stderr)
