@@ -16,7 +16,11 @@ Reads a finished run's cached results and predicts, per branch, the
 measured sweeps per sector needed to push the reach to θ = X. The error of
 the sign falls as 1/√sweeps; sign(X) is the exact value where one exists,
 the measured one inside the reach, and otherwise extrapolated from
-−ln|sign| ≈ Nχθ²/2 fitted over the reach. X must lie on the study's θ range.
+−ln|sign| ≈ Nχθ²/2 fitted over the reach. The answer is the sweeps at
+which a fraction --probability (default 0.9) of independent runs reach X:
+a run's sign at X scatters by σ ∝ 1/√sweeps, so S* = S·(σ(X)(f + z_P)/|sign(X)|)².
+X must lie on the study's θ range and below the first zero (exact where
+known, else resolved): beyond it the reach depends on the grid.
 
 Flags:
 `
@@ -25,7 +29,8 @@ func (e *env) budgetCommand(args []string) int {
 	fs := e.newFlagSet("budget", budgetUsage)
 	var f studyFlags
 	f.register(fs)
-	theta := fs.Float64("theta", math.NaN(), "target θ for the reach")
+	theta := fs.Float64("theta", math.NaN(), "target θ for the reach (below the first zero)")
+	prob := fs.Float64("probability", 0.9, "fraction of independent runs that should reach θ")
 	pos, code, done := e.parse(fs, args)
 	if done {
 		return code
@@ -62,8 +67,13 @@ func (e *env) budgetCommand(args []string) int {
 			s, _ := stages.ExactOnGrid(e, []float64{*theta}, st.Exact.MaxBits)
 			ex = float64(s[0])
 		}
-		p, err := transform.Budget(curve, b.N, float64(tr.Reach), float64(tr.ZeroBracket[0]), float64(tr.ZeroBracket[1]),
-			*theta, sweeps, st.Transform.ReachFactor, ex)
+		zero := float64(tr.ExactFirstZero)
+		if math.IsNaN(zero) && tr.FirstZero != nil {
+			zero = tr.FirstZero.Value
+		}
+		p, err := transform.Budget(curve, transform.BudgetInput{N: b.N, Reach: float64(tr.Reach), Lo: float64(tr.ZeroBracket[0]),
+			Hi: float64(tr.ZeroBracket[1]), Zero: zero, X: *theta, Sweeps: sweeps, Factor: st.Transform.ReachFactor,
+			ExactSign: ex, Probability: *prob})
 		if err != nil {
 			fmt.Fprintf(tw, "%s\t%.0f\t%s\t\t\t\t%v\n", b.Branch.Dir(), sweeps, g(float64(tr.Reach)), err)
 			failed++
@@ -72,7 +82,8 @@ func (e *env) budgetCommand(args []string) int {
 		fmt.Fprintf(tw, "%s\t%.0f\t%.4g\t%.3g\t%s\t%.3g\t%.3g\n", b.Branch.Dir(), sweeps, float64(tr.Reach), p.Sign, p.Source, p.Sigma, math.Ceil(p.Sweeps))
 	}
 	tw.Flush()
-	fmt.Fprintf(e.stdout, "assumptions: σ_sign ∝ 1/√sweeps with the chains' autocorrelation unchanged; reach factor %v; a zero between the reach and X still stops the reach\n", st.Transform.ReachFactor)
+	fmt.Fprintf(e.stdout, "sweeps needed: per sector, for %.0f%% of independent runs to reach θ = %s (calibrated on this run's σ(θ), its pilot)\n", 100**prob, stages.F(*theta))
+	fmt.Fprintf(e.stdout, "assumptions: σ_sign ∝ 1/√sweeps with the chains' autocorrelation unchanged; a run reaches θ when |sign| ≥ %v·σ there; targets at or beyond the first zero are refused\n", st.Transform.ReachFactor)
 	if failed > 0 {
 		return ExitFail
 	}

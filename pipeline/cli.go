@@ -590,7 +590,7 @@ func (e *env) show(p *Plan, c *cache.Cache) int {
 	res := LoadResults(c, p)
 	s := res.BuildSummary()
 	tw := tabwriter.NewWriter(e.stdout, 2, 4, 2, ' ', 0)
-	fmt.Fprintln(tw, "branch\tL\tbeta\tfirst zero\texact\treach")
+	fmt.Fprintln(tw, "branch\tL\tbeta\tfirst zero\texact\treach\treach below zero")
 	missing := 0
 	for _, b := range s.Branches {
 		fz := "—"
@@ -610,7 +610,11 @@ func (e *env) show(p *Plan, c *cache.Cache) int {
 		} else {
 			missing++
 		}
-		fmt.Fprintf(tw, "%s\t%d\t%s\t%s\t%s\t%s\n", b.Dir, b.Size, stages.F(b.Beta), fz, ex, reach)
+		below := "—"
+		if b.ReachBelowZero != nil {
+			below = fmt.Sprintf("%.4g", *b.ReachBelowZero)
+		}
+		fmt.Fprintf(tw, "%s\t%d\t%s\t%s\t%s\t%s\t%s\n", b.Dir, b.Size, stages.F(b.Beta), fz, ex, reach, below)
 	}
 	tw.Flush()
 	for _, b := range s.Branches {

@@ -48,6 +48,7 @@ type BranchSummary struct {
 	FirstZero         *stages.ValErr `json:"first_zero"`
 	Reach             *float64       `json:"reach"`
 	ReachIsLowerBound bool           `json:"reach_is_lower_bound"`
+	ReachBelowZero    *float64       `json:"reach_below_zero"`
 	ExactFirstZero    *float64       `json:"exact_first_zero"`
 	// ExactFirstZeroErr bounds the numerical error of exact_first_zero.
 	ExactFirstZeroErr *float64             `json:"exact_first_zero_err"`
@@ -161,6 +162,7 @@ func (r *Results) BuildSummary() Summary {
 			bs.FirstZero = t.FirstZero
 			bs.Reach = ptr(float64(t.Reach))
 			bs.ReachIsLowerBound = t.ReachLowerBound
+			bs.ReachBelowZero = ptr(float64(t.ReachBelowZero))
 			bs.ExactFirstZero = ptr(float64(t.ExactFirstZero))
 			for _, f := range t.Fits {
 				bs.Fit = append(bs.Fit, FitSummary{Degree: f.Degree, Chi2Dof: ptr(float64(f.Chi2Dof)), AIC: f.AIC,

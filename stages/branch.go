@@ -379,9 +379,14 @@ type TransformOut struct {
 	SingleCrossing      float64
 	Reach               NullableFloat
 	ReachLowerBound     bool
-	ExactFirstZero      NullableFloat
-	HasExact            bool
-	Fits                []FitCurve `json:",omitempty"`
+	// ReachBelowZero is the reach capped below the first zero (resolved
+	// or exact, whichever is smaller): the reach on the grid can pass a
+	// zero where |sign| ≥ factor·σ on both sides, which depends on where
+	// the grid points fall, not on the physics.
+	ReachBelowZero NullableFloat
+	ExactFirstZero NullableFloat
+	HasExact       bool
+	Fits           []FitCurve `json:",omitempty"`
 }
 
 // Transform returns the task computing sign(θ), Im m(θ), Δf(θ) with
@@ -429,6 +434,7 @@ func Transform(p TransformParams) Task {
 				out.ExactFirstZero = e.FirstZero
 				out.SignExact, out.ImMExact = ExactOnGrid(&e, grid, p.MaxBits)
 			}
+			out.ReachBelowZero = NullableFloat(reachBelowZero(grid, reach, out.FirstZero, float64(out.ExactFirstZero)))
 			if p.HasFit {
 				var f FitOut
 				if err := decode(inputs[next], &f); err != nil {
@@ -439,6 +445,28 @@ func Transform(p TransformParams) Task {
 			return encode(out)
 		},
 	}
+}
+
+// reachBelowZero caps a reach at the first zero: the reach itself when it
+// lies below the zero, else the largest grid point below the zero.
+func reachBelowZero(grid []float64, reach float64, zero *ValErr, exactZero float64) float64 {
+	limit := math.Inf(1)
+	if zero != nil {
+		limit = zero.Value
+	}
+	if !math.IsNaN(exactZero) {
+		limit = math.Min(limit, exactZero)
+	}
+	if math.IsNaN(reach) || reach < limit {
+		return reach
+	}
+	out := math.NaN()
+	for _, th := range grid {
+		if th < limit && th <= reach {
+			out = th
+		}
+	}
+	return out
 }
 
 // SupportedDigits is the relative precision below which an exact value on

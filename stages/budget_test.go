@@ -2,6 +2,7 @@ package stages
 
 import (
 	"math"
+	"sort"
 	"testing"
 
 	"strata/stages/exact"
@@ -34,7 +35,8 @@ func TestBudgetPrediction(t *testing.T) {
 	full, quarter := 0, 0
 	for seed := uint64(1); seed <= 10; seed++ {
 		_, tr := runBranch(t, 1, l, beta, 1, 1000, 100+seed, grid)
-		p, err := transform.Budget(curveOf(tr), l, float64(tr.Reach), math.NaN(), math.NaN(), x, 1000, 2, exactSign)
+		p, err := transform.Budget(curveOf(tr), transform.BudgetInput{N: l, Reach: float64(tr.Reach), Lo: math.NaN(), Hi: math.NaN(),
+			Zero: exact.RingFirstZero(l, beta), X: x, Sweeps: 1000, Factor: 2, ExactSign: exactSign, Probability: 0.5})
 		if err != nil {
 			t.Fatal(err)
 		}
@@ -53,5 +55,88 @@ func TestBudgetPrediction(t *testing.T) {
 	}
 	if full < 8 || quarter < 8 {
 		t.Errorf("with S*: %d/10 reached X−Δθ; with S*/4: %d/10 stayed below X", full, quarter)
+	}
+}
+
+// binomialBand99 returns the central 99% band [lo, hi] of the number of
+// successes in n trials with probability p (exact binomial tails).
+func binomialBand99(n int, p float64) (lo, hi int) {
+	pmf := func(k int) float64 {
+		lc, _ := math.Lgamma(float64(n + 1))
+		a, _ := math.Lgamma(float64(k + 1))
+		b, _ := math.Lgamma(float64(n - k + 1))
+		return math.Exp(lc - a - b + float64(k)*math.Log(p) + float64(n-k)*math.Log1p(-p))
+	}
+	cum := 0.0
+	for lo = 0; lo <= n; lo++ {
+		if cum+pmf(lo) > 0.005 {
+			break
+		}
+		cum += pmf(lo)
+	}
+	cum = 0
+	for hi = n; hi >= 0; hi-- {
+		if cum+pmf(hi) > 0.005 {
+			break
+		}
+		cum += pmf(hi)
+	}
+	return lo, hi
+}
+
+// Budget honesty (its success probability is the claim under test): on a
+// 24-ring at β = 0.3 (exact sign and zero from the closed forms, Baxter
+// ch. 2), a pilot of 2000 sweeps per seed predicts the sweeps S* at which
+// 90% of runs reach X = 0.5 (sign 7.1e−4, below the first zero 0.584); over 24 seeds the
+// number of runs with S* that reach X lies in the 99% binomial band of 0.9,
+// and the median ratio of S* to the smallest sufficient sweeps on a ×2
+// ladder (S*/8 … 2S*, nested chunks) is at most 4.
+func TestBudgetHonesty(t *testing.T) {
+	if testing.Short() {
+		t.Skip("24 pilots and ladders")
+	}
+	const l, beta, x, prob = 24, 0.3, 0.5, 0.9
+	grid := TransformParams{ThetaMin: 0, ThetaMax: 0.55, Points: 111, ReachFactor: 2, ZeroFraction: 0.95, MaxBits: 4096}
+	exactSign, _ := exact.RingSign(l, beta, x)
+	zero := exact.RingFirstZero(l, beta)
+	reaches := func(chunks int, seed uint64) bool {
+		_, tr := runBranch(t, 1, l, beta, chunks, 1000, seed, grid)
+		return float64(tr.ReachBelowZero) >= x-1e-9
+	}
+	const seeds = 24
+	hits := 0
+	var ratios []float64
+	for s := uint64(1); s <= seeds; s++ {
+		_, pilot := runBranch(t, 1, l, beta, 2, 1000, 500+s, grid)
+		p, err := transform.Budget(curveOf(pilot), transform.BudgetInput{N: l, Reach: float64(pilot.Reach), Lo: math.NaN(), Hi: math.NaN(),
+			Zero: zero, X: x, Sweeps: 2000, Factor: 2, ExactSign: exactSign, Probability: prob})
+		if err != nil {
+			t.Fatal(err)
+		}
+		star := int(math.Ceil(p.Sweeps / 1000)) // chunks of 1000 sweeps
+		if star < 8 {
+			t.Fatalf("seed %d: S* = %v too small for a ×2 ladder below it", s, p.Sweeps)
+		}
+		if reaches(star, 900+s) {
+			hits++
+		}
+		smallest := math.NaN()
+		for _, c := range []int{star / 8, star / 4, star / 2, star, 2 * star} {
+			if reaches(c, 700+s) {
+				smallest = float64(c)
+				break
+			}
+		}
+		ratios = append(ratios, float64(star)/smallest) // NaN sorts first: counted as a miss
+	}
+	lo, hi := binomialBand99(seeds, prob)
+	if hits < lo || hits > hi {
+		t.Errorf("%d of %d runs with S* reached θ = %v; the 99%% band of P = %v is [%d, %d]", hits, seeds, x, prob, lo, hi)
+	}
+	sort.Float64s(ratios)
+	med := ratios[len(ratios)/2]
+	t.Logf("reached %d/%d (band [%d, %d]); S*/S_min: %v", hits, seeds, lo, hi, ratios)
+	if !(med <= 4) {
+		t.Errorf("median S*/S_min = %v, want ≤ 4", med)
 	}
 }

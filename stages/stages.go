@@ -47,7 +47,7 @@ const (
 	stitchVersion       = 2
 	exactVersion        = 3
 	exactDensityVersion = 1
-	transformVersion    = 4
+	transformVersion    = 5
 	scalingVersion      = 3
 	fitVersion          = 2
 	routesVersion       = 1

@@ -15,17 +15,47 @@ type Prediction struct {
 	Chi     float64 // fitted χ in −ln|sign| ≈ Nχθ²/2 (extrapolated only)
 	Factor  float64 // reach factor f
 	Current float64 // current sweeps per sector
+	// Probability is the fraction of independent runs with Sweeps sweeps
+	// expected to reach X; Z the matching normal quantile.
+	Probability, Z float64
 }
 
-// Budget predicts the sweeps per sector S* at which |sign(X)| = f·σ(X):
-// the error of a Monte Carlo sign falls as 1/√S, so
-// S* = S·(f·σ(X)/|sign(X)|)². Beyond the reach sign(X) itself is noise: an
-// exact value is used when given (pass NaN otherwise), else the measured
-// sign inside the reach, else the Gaussian extrapolation
-// −ln|sign| ≈ N χ θ²/2 with χ fitted by least squares on the grid points in
-// (0, reach] outside the zero bracket (lo, hi). σ(X) is interpolated
-// linearly in ln σ between grid points.
-func Budget(c *Curve, n int, reach, lo, hi, x, sweeps, factor, exactSign float64) (Prediction, error) {
+// BudgetInput is what Budget needs besides the measured curve.
+type BudgetInput struct {
+	N           int
+	Reach       float64 // reach of the measured curve
+	Lo, Hi      float64 // zero bracket (NaN when none)
+	Zero        float64 // the first zero: exact where known, else resolved (NaN when none)
+	X           float64 // target θ
+	Sweeps      float64 // sweeps per sector of the measured curve (the pilot)
+	Factor      float64 // reach factor f
+	ExactSign   float64 // sign(X) exactly, NaN when unknown
+	Probability float64 // wanted fraction of runs reaching X, in (0, 1)
+}
+
+// Budget predicts the sweeps per sector S* at which a fraction P of
+// independent runs reach θ = X. A run's measured sign at X is ŝ ~ N(s, σ)
+// with σ ∝ 1/√S (the pilot's σ(X) at its S₀ sweeps), and it reaches X when
+// |ŝ| ≥ f·σ, so P = Φ(s/σ − f) and
+//
+//	S* = S₀·(σ₀(X)·(f + z_P)/|s|)²,  z_P = Φ⁻¹(P)
+//
+// (P = 0.5 is the point where the expected |sign| is exactly the
+// threshold; the grid points below X must reach too, which the monotone
+// decrease of |sign| below the first zero ensures). Targets at or beyond
+// the first zero are refused: there the reach depends on where grid points
+// fall. sign(X) is exact when given, else measured inside the reach, else
+// the Gaussian extrapolation −ln|sign| ≈ N χ θ²/2 with χ fitted by least
+// squares on the grid points in (0, reach] outside the zero bracket. σ(X) is
+// interpolated linearly in ln σ between grid points.
+func Budget(c *Curve, in BudgetInput) (Prediction, error) {
+	n, reach, lo, hi, x, sweeps, factor, exactSign := in.N, in.Reach, in.Lo, in.Hi, in.X, in.Sweeps, in.Factor, in.ExactSign
+	if !(in.Probability > 0 && in.Probability < 1) {
+		return Prediction{}, fmt.Errorf("success probability %v must lie in (0, 1)", in.Probability)
+	}
+	if x >= in.Zero {
+		return Prediction{}, fmt.Errorf("θ = %v is at or beyond the first zero %.6g: the reach there depends on where the grid points fall; give a target below the zero", x, in.Zero)
+	}
 	p := Prediction{Theta: x, Factor: factor, Current: sweeps}
 	th := c.Theta
 	if x < th[0] || x > th[len(th)-1] {
@@ -64,7 +94,9 @@ func Budget(c *Curve, n int, reach, lo, hi, x, sweeps, factor, exactSign float64
 	if !(p.Sigma > 0) || !(p.Sign > 0) {
 		return p, fmt.Errorf("cannot predict: sign %v, σ %v at θ = %v", p.Sign, p.Sigma, x)
 	}
-	r := factor * p.Sigma / p.Sign
+	p.Probability = in.Probability
+	p.Z = math.Sqrt2 * math.Erfinv(2*in.Probability-1)
+	r := (factor + p.Z) * p.Sigma / p.Sign
 	p.Sweeps = sweeps * r * r
 	return p, nil
 }
