@@ -413,9 +413,14 @@ func TestShowExactBudgetCommands(t *testing.T) {
 	if code != 0 || !strings.Contains(stdout, "L8_beta0.4") || !strings.Contains(stdout, "±") {
 		t.Errorf("show: exit %d\n%s", code, stdout)
 	}
-	code, stdout, _ = runCLI(t, "budget", study, "--theta", "0.6")
-	if code != 0 || !strings.Contains(stdout, "exact") || !strings.Contains(stdout, "sweeps needed") {
+	code, stdout, _ = runCLI(t, "budget", study, "--theta", "0.45")
+	if code != 0 || !strings.Contains(stdout, "exact") || !strings.Contains(stdout, "sweeps needed") || !strings.Contains(stdout, "90%") {
 		t.Errorf("budget: exit %d\n%s", code, stdout)
+	}
+	// beyond the first zero (0.50 and 0.53 here) the reach depends on the grid: refused
+	code, stdout, _ = runCLI(t, "budget", study, "--theta", "0.6")
+	if code != 1 || !strings.Contains(stdout, "beyond the first zero") {
+		t.Errorf("budget beyond the zero: exit %d\n%s", code, stdout)
 	}
 	code, stdout, _ = runCLI(t, "exact", "--dimension", "1", "--size", "64", "--beta", "0.45", "--theta-max", "0.6", "--theta-points", "121")
 	if code != 0 || strings.Count(stdout, "\n") != 4+1+121 || !strings.Contains(stdout, "# first_zero 0.41937") ||
