@@ -122,6 +122,17 @@ func (c *Cache) Put(action Key, data []byte) error {
 	return writeAtomic(c.path(action, "-a"), []byte(line))
 }
 
+// PutMeta stores provenance beside an entry (e.g. the CPU time it took):
+// not hashed, not verified, removed with the entry.
+func (c *Cache) PutMeta(action Key, meta []byte) error {
+	return WriteFile(c.path(action, "-m"), meta, 0o644)
+}
+
+// Meta returns the provenance stored beside an entry.
+func (c *Cache) Meta(action Key) ([]byte, error) {
+	return os.ReadFile(c.path(action, "-m"))
+}
+
 // Listed reports whether an entry for action exists, without reading or
 // verifying its object (for estimates; Get verifies).
 func (c *Cache) Listed(action Key) bool {
@@ -350,6 +361,7 @@ func (c *Cache) GC(keep map[Key]bool, olderThan time.Duration) (GCStats, error) 
 		if !keep[k] && removable(info) {
 			if err := os.Remove(path); err == nil {
 				st.Actions++
+				os.Remove(c.path(k, "-m"))
 			}
 			return nil
 		}

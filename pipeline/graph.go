@@ -29,9 +29,10 @@ type Node struct {
 	// cost estimates sample work (sweeps × N) for shard balancing
 	cost float64
 	// filled by a run
-	Status  string
-	Seconds float64
-	Err     error
+	Status     string
+	Seconds    float64
+	CPUSeconds float64 // sample shards computed in this run: thread CPU time
+	Err        error
 }
 
 // Name is the node's display name.

@@ -49,7 +49,10 @@ type BranchSummary struct {
 	Reach             *float64       `json:"reach"`
 	ReachIsLowerBound bool           `json:"reach_is_lower_bound"`
 	ReachBelowZero    *float64       `json:"reach_below_zero"`
-	ExactFirstZero    *float64       `json:"exact_first_zero"`
+	// CPUSeconds sums the sample shards' CPU time (provenance: it differs
+	// between runs and is left out of bit-identity and baselines).
+	CPUSeconds     *float64 `json:"cpu_seconds"`
+	ExactFirstZero *float64 `json:"exact_first_zero"`
 	// ExactFirstZeroErr bounds the numerical error of exact_first_zero.
 	ExactFirstZeroErr *float64             `json:"exact_first_zero_err"`
 	Fit               []FitSummary         `json:"fit,omitempty"`
@@ -102,6 +105,9 @@ type Results struct {
 	Routes    map[*BranchNodes]*stages.RoutesOut
 	Scaling   map[*ScalingNode]*stages.ScalingOut
 
+	// CPU seconds of each branch's sample shards (provenance)
+	CPU map[*BranchNodes]float64
+
 	// while writing an output folder: its root and the files written
 	outRoot  string
 	produced map[string]bool
@@ -126,7 +132,8 @@ func load[T any](c *cache.Cache, n *Node) (*T, error) {
 func LoadResults(c *cache.Cache, p *Plan) *Results {
 	r := &Results{Plan: p, Ratios: map[*BranchNodes]*stages.RatiosOut{}, Stitch: map[*BranchNodes]*stages.StitchOut{},
 		Exact: map[*BranchNodes]*stages.ExactOut{}, Transform: map[*BranchNodes]*stages.TransformOut{},
-		Routes: map[*BranchNodes]*stages.RoutesOut{}, Scaling: map[*ScalingNode]*stages.ScalingOut{}}
+		Routes: map[*BranchNodes]*stages.RoutesOut{}, Scaling: map[*ScalingNode]*stages.ScalingOut{},
+		CPU: map[*BranchNodes]float64{}}
 	for _, b := range p.Branches {
 		if v, err := load[stages.RatiosOut](c, b.Ratios); err == nil {
 			r.Ratios[b] = v
@@ -142,6 +149,14 @@ func LoadResults(c *cache.Cache, p *Plan) *Results {
 		}
 		if v, err := load[stages.RoutesOut](c, b.Routes); err == nil && v != nil {
 			r.Routes[b] = v
+		}
+		for _, s := range b.Samples {
+			if m, err := c.Meta(s.Key); err == nil {
+				var sm ShardMeta
+				if json.Unmarshal(m, &sm) == nil {
+					r.CPU[b] += sm.CPUSeconds
+				}
+			}
 		}
 	}
 	for _, s := range p.Scaling {
@@ -176,6 +191,9 @@ func (r *Results) BuildSummary() Summary {
 		}
 		if ro := r.Routes[b]; ro != nil {
 			bs.Routes = ro.Routes
+		}
+		if cpu, ok := r.CPU[b]; ok {
+			bs.CPUSeconds = ptr(cpu)
 		}
 		if sv := r.Stitch[b]; sv != nil {
 			bs.Warnings = sv.Warnings

@@ -1,15 +1,18 @@
 package pipeline
 
 import (
+	"encoding/json"
 	"errors"
 	"fmt"
 	"io"
+	"runtime"
 	"sort"
 	"strings"
 	"sync"
 	"time"
 
 	"strata/cache"
+	"strata/stages"
 )
 
 // Runner executes a plan's nodes against a cache.
@@ -290,6 +293,14 @@ func (r *Runner) runNode(n *Node) {
 	}
 	start := time.Now()
 	var out []byte
+	var cpu0 float64
+	var clock string
+	if n.Task.Stage == stages.SampleStage {
+		// a shard runs on one goroutine: pin it to measure its thread's CPU
+		runtime.LockOSThread()
+		defer runtime.UnlockOSThread()
+		cpu0, clock = threadCPU()
+	}
 	if n.Task.Lazy != nil {
 		// inputs streamed from the cache as the task asks for them
 		out, err = n.Task.Lazy(func(i int) ([]byte, error) {
@@ -318,9 +329,18 @@ func (r *Runner) runNode(n *Node) {
 	if r.outputHook != nil {
 		out = r.outputHook(n.Task.Stage, out)
 	}
+	if clock != "" {
+		cpu1, _ := threadCPU()
+		n.CPUSeconds = cpu1 - cpu0
+	}
 	if err := r.Cache.Put(n.Key, out); err != nil {
 		n.Err = err
 		return
+	}
+	if clock != "" {
+		if meta, err := json.Marshal(ShardMeta{CPUSeconds: n.CPUSeconds, Clock: clock}); err == nil {
+			_ = r.Cache.PutMeta(n.Key, meta) // provenance only: a failure costs nothing else
+		}
 	}
 	n.Status = "computed"
 	n.Seconds = time.Since(start).Seconds()
