@@ -82,5 +82,8 @@ func typeError(err error) string {
 	if i := strings.LastIndex(s, ": "); i >= 0 && strings.Contains(s, "incompatible types") {
 		return "wrong type: " + s[i+2:]
 	}
+	if i := strings.Index(s, "): "); strings.HasPrefix(s, "toml: line") && i >= 0 {
+		return "wrong type: " + s[i+3:] // from our own UnmarshalTOML
+	}
 	return s
 }

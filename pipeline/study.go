@@ -47,11 +47,54 @@ type ModelSpec struct {
 
 // SampleSpec configures the sector chains.
 type SampleSpec struct {
-	Sweeps         int    `toml:"sweeps" json:"sweeps"`                 // measured sweeps per sector (rounded up to whole chunks)
+	Sweeps         Sweeps `toml:"sweeps" json:"sweeps"`                 // measured sweeps per sector (rounded up to whole chunks); a list is a statistics ladder
 	ChunkSweeps    int    `toml:"chunk_sweeps" json:"chunk_sweeps"`     // sweeps per independent chain (shard)
 	Thermalization int    `toml:"thermalization" json:"thermalization"` // sweeps discarded per chunk
 	Seed           int64  `toml:"seed" json:"seed"`
 	Estimator      string `toml:"estimator" json:"estimator"`
+}
+
+// Sweeps is [sample] sweeps: one number, or a strictly increasing list (a
+// statistics ladder whose rungs share their first chunks).
+type Sweeps []int
+
+// UnmarshalTOML accepts an integer or an array of integers.
+func (s *Sweeps) UnmarshalTOML(v any) error {
+	switch x := v.(type) {
+	case int64:
+		*s = Sweeps{int(x)}
+		return nil
+	case []any:
+		out := make(Sweeps, 0, len(x))
+		for _, e := range x {
+			n, ok := e.(int64)
+			if !ok {
+				return fmt.Errorf("must be an integer or a list of integers (got %v)", e)
+			}
+			out = append(out, int(n))
+		}
+		*s = out
+		return nil
+	}
+	return fmt.Errorf("must be an integer or a list of integers (got %v)", v)
+}
+
+// MarshalJSON writes one rung as a number (the canonical form of a study
+// without a ladder is unchanged), a ladder as an array.
+func (s Sweeps) MarshalJSON() ([]byte, error) {
+	if len(s) == 1 {
+		return []byte(strconv.Itoa(s[0])), nil
+	}
+	return json.Marshal([]int(s))
+}
+
+// Top is the largest rung: the statistics every output but the ladder's
+// lower rungs use.
+func (s Sweeps) Top() int {
+	if len(s) == 0 {
+		return 0
+	}
+	return s[len(s)-1]
 }
 
 // RatiosSpec configures the error analysis of the ratios.
@@ -135,7 +178,7 @@ type ExpectSpec struct {
 func Defaults() Study {
 	return Study{
 		Name: "study",
-		Sample: SampleSpec{Sweeps: 4000, ChunkSweeps: 1000, Thermalization: 100,
+		Sample: SampleSpec{Sweeps: Sweeps{4000}, ChunkSweeps: 1000, Thermalization: 100,
 			Seed: 1, Estimator: ratio.Insertion},
 		Ratios:    RatiosSpec{MinTauRatio: 100, WarnTauRatio: 1000},
 		Stitch:    StitchSpec{Replicas: 200},
@@ -301,8 +344,24 @@ func (st *Study) validate(p *Problems) {
 		seenB[b] = true
 	}
 	s := st.Sample
-	if s.Sweeps > maxSweeps {
-		p.add("sample.sweeps", "%d exceeds the limit of %d sweeps per sector", s.Sweeps, maxSweeps)
+	for i, v := range s.Sweeps {
+		if v > maxSweeps {
+			p.add("sample.sweeps", "%d exceeds the limit of %d sweeps per sector", v, maxSweeps)
+		}
+		if v < 1000 {
+			p.add("sample.sweeps", "%d is below the minimum of 1000 measured sweeps per sector", v)
+		}
+		if len(s.Sweeps) > 1 {
+			if i > 0 && v <= s.Sweeps[i-1] {
+				p.add("sample.sweeps", "a ladder must increase strictly: %d after %d", v, s.Sweeps[i-1])
+			}
+			if s.ChunkSweeps > 0 && v%s.ChunkSweeps != 0 {
+				p.add("sample.sweeps", "ladder rung %d is not a multiple of chunk_sweeps = %d (rungs share whole chunks)", v, s.ChunkSweeps)
+			}
+		}
+	}
+	if len(s.Sweeps) == 0 {
+		p.add("sample.sweeps", "give a number of sweeps or a list of them")
 	}
 	if s.ChunkSweeps > maxSweeps {
 		p.add("sample.chunk_sweeps", "%d exceeds the limit of %d", s.ChunkSweeps, maxSweeps)
@@ -310,9 +369,7 @@ func (st *Study) validate(p *Problems) {
 	if s.Thermalization > maxSweeps {
 		p.add("sample.thermalization", "%d exceeds the limit of %d", s.Thermalization, maxSweeps)
 	}
-	if s.Sweeps < 1000 {
-		p.add("sample.sweeps", "%d is below the minimum of 1000 measured sweeps per sector", s.Sweeps)
-	}
+
 	if s.ChunkSweeps < 100 {
 		p.add("sample.chunk_sweeps", "%d must be ≥ 100", s.ChunkSweeps)
 	}
@@ -482,7 +539,7 @@ func (st *Study) validateLimits(p *Problems) {
 // Chunks returns the number of chunks per sector: sweeps rounded up to
 // whole chunks.
 func (st *Study) Chunks() int {
-	return (st.Sample.Sweeps + st.Sample.ChunkSweeps - 1) / st.Sample.ChunkSweeps
+	return (st.Sample.Sweeps.Top() + st.Sample.ChunkSweeps - 1) / st.Sample.ChunkSweeps
 }
 
 // Canonical returns the study as canonical JSON (fixed field order, floats
