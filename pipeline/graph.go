@@ -4,6 +4,7 @@ import (
 	"encoding/binary"
 	"fmt"
 	"math"
+	"path/filepath"
 	"sort"
 	"strings"
 
@@ -85,6 +86,19 @@ type BranchNodes struct {
 	Fit       *Node // nil unless [fit] enabled
 	Transform *Node
 	Routes    *Node // nil unless [routes] enabled
+	// Rung is the sweeps of a ladder's lower rung (0 for the top, which is
+	// the branch itself); Rungs are the lower rungs of a branch.
+	Rung  int
+	Rungs []*BranchNodes
+}
+
+// OutDir is the branch's output folder, rung<sweeps>/ inside it for a
+// lower rung of a ladder.
+func (b *BranchNodes) OutDir() string {
+	if b.Rung > 0 {
+		return filepath.Join(b.Branch.Dir(), fmt.Sprintf("rung%d", b.Rung))
+	}
+	return b.Branch.Dir()
 }
 
 // Plan is a study's full graph in dependency order.
@@ -143,11 +157,6 @@ func BuildPlan(st *Study) *Plan {
 				bn.Shards = append(bn.Shards, stages.Shard{M: m, Chunk: c})
 			}
 		}
-		bn.Ratios = newNode(stages.Ratios(stages.RatiosParams{D: d, L: b.L, Beta: b.Beta,
-			Estimator: st.Sample.Estimator, MinTauRatio: st.Ratios.MinTauRatio,
-			WarnTauRatio: st.Ratios.WarnTauRatio, Shards: bn.Shards}), dir, "", bn.Samples...)
-		bn.Stitch = newNode(stages.Stitch(st.Stitch.Replicas, replicaSeed(st, b)), dir, "", bn.Ratios)
-		tin := []*Node{bn.Stitch}
 		if kind := st.exactKind(b); kind != "" {
 			var ein []*Node
 			switch kind {
@@ -165,23 +174,6 @@ func BuildPlan(st *Study) *Plan {
 				ein = append(ein, dn)
 			}
 			bn.Exact = newNode(stages.Exact(d, b.L, b.Beta, kind), dir, "", ein...)
-			tin = append(tin, bn.Exact)
-		}
-		btp := tp
-		btp.HasExact = bn.Exact != nil
-		if st.Fit.Enabled {
-			bn.Fit = newNode(stages.Fit(st.Fit.Target, st.Fit.Degrees), dir, "", bn.Stitch)
-			tin = append(tin, bn.Fit)
-			btp.HasFit = true
-		}
-		bn.Transform = newNode(stages.Transform(btp), dir, "", tin...)
-		if st.Routes.Enabled {
-			rin := []*Node{bn.Stitch, bn.Transform}
-			if bn.Exact != nil {
-				rin = append(rin, bn.Exact)
-			}
-			bn.Routes = newNode(stages.Routes(stages.RoutesParams{MaxOrder: st.Routes.MaxOrder, Fields: st.Routes.Fields,
-				HasExact: bn.Exact != nil}), dir, "", rin...)
 		}
 		p.Branches = append(p.Branches, bn)
 		byBeta[b.Beta] = append(byBeta[b.Beta], bn)
@@ -189,18 +181,64 @@ func BuildPlan(st *Study) *Plan {
 		if bn.Exact != nil {
 			p.Nodes = append(p.Nodes, bn.Exact)
 		}
-		p.Nodes = append(p.Nodes, bn.Ratios, bn.Stitch)
-		if bn.Fit != nil {
-			p.Nodes = append(p.Nodes, bn.Fit)
-		}
-		p.Nodes = append(p.Nodes, bn.Transform)
-		if bn.Routes != nil {
-			p.Nodes = append(p.Nodes, bn.Routes)
+		p.analyse(bn, tp, "")
+		// the lower rungs of a statistics ladder: the same analysis on the
+		// first chunks of every sector (the same shards, nested)
+		for _, sw := range st.Sample.Sweeps[:len(st.Sample.Sweeps)-1] {
+			k := sw / st.Sample.ChunkSweeps
+			rb := &BranchNodes{Branch: b, N: n, Rung: sw, Exact: bn.Exact}
+			for i, sh := range bn.Shards {
+				if sh.Chunk < k {
+					rb.Samples = append(rb.Samples, bn.Samples[i])
+					rb.Shards = append(rb.Shards, sh)
+				}
+			}
+			p.analyse(rb, tp, fmt.Sprintf("rung %d", sw))
+			bn.Rungs = append(bn.Rungs, rb)
 		}
 	}
 	p.addScaling(st, byBeta)
 	sort.SliceStable(p.Nodes, func(i, j int) bool { return p.Nodes[i].level < p.Nodes[j].level })
 	return p
+}
+
+// analyse adds a branch's (or a rung's) analysis nodes: ratios, stitch,
+// fit, transform and routes, from its samples and its exact reference.
+func (p *Plan) analyse(bn *BranchNodes, tp stages.TransformParams, label string) {
+	st, b, dir := p.Study, bn.Branch, bn.Branch.Dir()
+	d := st.Model.Dimension
+	bn.Ratios = newNode(stages.Ratios(stages.RatiosParams{D: d, L: b.L, Beta: b.Beta,
+		Estimator: st.Sample.Estimator, MinTauRatio: st.Ratios.MinTauRatio,
+		WarnTauRatio: st.Ratios.WarnTauRatio, Shards: bn.Shards}), dir, label, bn.Samples...)
+	bn.Stitch = newNode(stages.Stitch(st.Stitch.Replicas, replicaSeed(st, b)), dir, label, bn.Ratios)
+	tin := []*Node{bn.Stitch}
+	if bn.Exact != nil {
+		tin = append(tin, bn.Exact)
+	}
+	btp := tp
+	btp.HasExact = bn.Exact != nil
+	if st.Fit.Enabled {
+		bn.Fit = newNode(stages.Fit(st.Fit.Target, st.Fit.Degrees), dir, label, bn.Stitch)
+		tin = append(tin, bn.Fit)
+		btp.HasFit = true
+	}
+	bn.Transform = newNode(stages.Transform(btp), dir, label, tin...)
+	if st.Routes.Enabled {
+		rin := []*Node{bn.Stitch, bn.Transform}
+		if bn.Exact != nil {
+			rin = append(rin, bn.Exact)
+		}
+		bn.Routes = newNode(stages.Routes(stages.RoutesParams{MaxOrder: st.Routes.MaxOrder, Fields: st.Routes.Fields,
+			HasExact: bn.Exact != nil}), dir, label, rin...)
+	}
+	p.Nodes = append(p.Nodes, bn.Ratios, bn.Stitch)
+	if bn.Fit != nil {
+		p.Nodes = append(p.Nodes, bn.Fit)
+	}
+	p.Nodes = append(p.Nodes, bn.Transform)
+	if bn.Routes != nil {
+		p.Nodes = append(p.Nodes, bn.Routes)
+	}
 }
 
 // ShardOf assigns sample nodes to K tasks, balanced by cost with the

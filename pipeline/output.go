@@ -51,8 +51,10 @@ type BranchSummary struct {
 	ReachBelowZero    *float64       `json:"reach_below_zero"`
 	// CPUSeconds sums the sample shards' CPU time (provenance: it differs
 	// between runs and is left out of bit-identity and baselines).
-	CPUSeconds     *float64 `json:"cpu_seconds"`
-	ExactFirstZero *float64 `json:"exact_first_zero"`
+	CPUSeconds *float64 `json:"cpu_seconds"`
+	// Cost: statistics ladders only.
+	Cost           *CostSummary `json:"cost,omitempty"`
+	ExactFirstZero *float64     `json:"exact_first_zero"`
 	// ExactFirstZeroErr bounds the numerical error of exact_first_zero.
 	ExactFirstZeroErr *float64             `json:"exact_first_zero_err"`
 	Fit               []FitSummary         `json:"fit,omitempty"`
@@ -128,6 +130,33 @@ func load[T any](c *cache.Cache, n *Node) (*T, error) {
 	return v, nil
 }
 
+// load reads one branch's (or rung's) outputs.
+func (r *Results) load(c *cache.Cache, b *BranchNodes) {
+	if v, err := load[stages.RatiosOut](c, b.Ratios); err == nil {
+		r.Ratios[b] = v
+	}
+	if v, err := load[stages.StitchOut](c, b.Stitch); err == nil {
+		r.Stitch[b] = v
+	}
+	if v, err := load[stages.ExactOut](c, b.Exact); err == nil && v != nil {
+		r.Exact[b] = v
+	}
+	if v, err := load[stages.TransformOut](c, b.Transform); err == nil {
+		r.Transform[b] = v
+	}
+	if v, err := load[stages.RoutesOut](c, b.Routes); err == nil && v != nil {
+		r.Routes[b] = v
+	}
+	for _, s := range b.Samples {
+		if m, err := c.Meta(s.Key); err == nil {
+			var sm ShardMeta
+			if json.Unmarshal(m, &sm) == nil {
+				r.CPU[b] += sm.CPUSeconds
+			}
+		}
+	}
+}
+
 // LoadResults reads whatever of the plan's outputs the cache holds.
 func LoadResults(c *cache.Cache, p *Plan) *Results {
 	r := &Results{Plan: p, Ratios: map[*BranchNodes]*stages.RatiosOut{}, Stitch: map[*BranchNodes]*stages.StitchOut{},
@@ -135,28 +164,9 @@ func LoadResults(c *cache.Cache, p *Plan) *Results {
 		Routes: map[*BranchNodes]*stages.RoutesOut{}, Scaling: map[*ScalingNode]*stages.ScalingOut{},
 		CPU: map[*BranchNodes]float64{}}
 	for _, b := range p.Branches {
-		if v, err := load[stages.RatiosOut](c, b.Ratios); err == nil {
-			r.Ratios[b] = v
-		}
-		if v, err := load[stages.StitchOut](c, b.Stitch); err == nil {
-			r.Stitch[b] = v
-		}
-		if v, err := load[stages.ExactOut](c, b.Exact); err == nil && v != nil {
-			r.Exact[b] = v
-		}
-		if v, err := load[stages.TransformOut](c, b.Transform); err == nil {
-			r.Transform[b] = v
-		}
-		if v, err := load[stages.RoutesOut](c, b.Routes); err == nil && v != nil {
-			r.Routes[b] = v
-		}
-		for _, s := range b.Samples {
-			if m, err := c.Meta(s.Key); err == nil {
-				var sm ShardMeta
-				if json.Unmarshal(m, &sm) == nil {
-					r.CPU[b] += sm.CPUSeconds
-				}
-			}
+		r.load(c, b)
+		for _, rb := range b.Rungs {
+			r.load(c, rb)
 		}
 	}
 	for _, s := range p.Scaling {
@@ -194,6 +204,9 @@ func (r *Results) BuildSummary() Summary {
 		}
 		if cpu, ok := r.CPU[b]; ok {
 			bs.CPUSeconds = ptr(cpu)
+		}
+		if len(b.Rungs) > 0 {
+			bs.Cost = r.costSummary(b)
 		}
 		if sv := r.Stitch[b]; sv != nil {
 			bs.Warnings = sv.Warnings
@@ -453,10 +466,25 @@ func (r *Results) branchTables(b *BranchNodes) map[string]*table {
 }
 
 func (r *Results) writeBranch(c *cache.Cache, b *BranchNodes, outDir string) error {
-	dir := filepath.Join(outDir, b.Branch.Dir())
+	dir := filepath.Join(outDir, b.OutDir())
 	tables := r.branchTables(b)
 	for _, key := range []string{"ratios", "density", "transform", "routes", "cumulants"} {
 		if t := tables[key]; t != nil {
+			if err := r.writeFile(filepath.Join(dir, t.name), csvTable(t.header, t.cols)); err != nil {
+				return err
+			}
+		}
+	}
+	if b.Rung > 0 {
+		return nil // a ladder's lower rung: its samples are the branch's first chunks
+	}
+	for _, rb := range b.Rungs {
+		if err := r.writeBranch(c, rb, outDir); err != nil {
+			return err
+		}
+	}
+	if len(b.Rungs) > 0 {
+		if t := r.costTable(b); t != nil {
 			if err := r.writeFile(filepath.Join(dir, t.name), csvTable(t.header, t.cols)); err != nil {
 				return err
 			}

@@ -35,6 +35,7 @@ type Study struct {
 	Scaling   ScalingSpec   `toml:"scaling" json:"scaling"`
 	Fit       FitSpec       `toml:"fit" json:"fit"`
 	Routes    RoutesSpec    `toml:"routes" json:"routes"`
+	Cost      CostSpec      `toml:"cost" json:"cost"`
 	Expect    []ExpectSpec  `toml:"expect" json:"expect,omitempty"`
 }
 
@@ -149,6 +150,13 @@ type FitSpec struct {
 	Enabled bool   `toml:"enabled" json:"enabled"`
 	Target  string `toml:"target" json:"target"`   // "ln_rho" or "ln_ratio"
 	Degrees []int  `toml:"degrees" json:"degrees"` // scanned in one run
+}
+
+// CostSpec configures the cost analysis of a statistics ladder.
+type CostSpec struct {
+	// ThetaRef is where cost.csv reports the sign's error per rung
+	// (default: the smallest reach below the zero of the ladder).
+	ThetaRef *float64 `toml:"theta_ref" json:"theta_ref,omitempty"`
 }
 
 // RoutesSpec configures the optional routes stage: real-field cumulants
@@ -468,6 +476,9 @@ func (st *Study) validate(p *Problems) {
 		}
 	}
 	st.validateLimits(p)
+	if v := st.Cost.ThetaRef; v != nil && !(*v >= 0 && *v <= math.Pi/2) {
+		p.add("cost.theta_ref", "%v must be in [0, π/2]", *v)
+	}
 	r := st.Routes
 	if r.MaxOrder < 4 || r.MaxOrder > 40 {
 		p.add("routes.max_order", "%d must be in 4..40 (a leading-zero estimate needs four cumulants)", r.MaxOrder)
