@@ -213,13 +213,20 @@ func (c *Cache) RemoveTemps(pid int) int {
 	return n
 }
 
-// writeAtomic writes a read-only cache file.
-func writeAtomic(path string, data []byte) error { return WriteFile(path, data, 0o444) }
+// writeAtomic writes a read-only cache file (temp file + rename) without
+// fsync: every read re-hashes the object against its entry, so a torn or
+// missing file after a crash is a miss and is recomputed, never used; the
+// per-object fsync cost more than the work on small lattices.
+func writeAtomic(path string, data []byte) error { return writeFile(path, data, 0o444, false) }
 
 // WriteFile writes data to path atomically: a temp file in the same folder
 // is written, synced, given perm and renamed over path, and the folder is
 // synced. Readers see the old file or the new one, never a part.
 func WriteFile(path string, data []byte, perm os.FileMode) error {
+	return writeFile(path, data, perm, true)
+}
+
+func writeFile(path string, data []byte, perm os.FileMode, sync bool) error {
 	dir := filepath.Dir(path)
 	if err := os.MkdirAll(dir, 0o777); err != nil {
 		return fmt.Errorf("cache: %w", err)
@@ -230,7 +237,7 @@ func WriteFile(path string, data []byte, perm os.FileMode) error {
 	}
 	tmp := f.Name()
 	_, werr := f.Write(data)
-	if werr == nil {
+	if werr == nil && sync {
 		werr = f.Sync()
 	}
 	if cerr := f.Close(); werr == nil {
@@ -245,6 +252,9 @@ func WriteFile(path string, data []byte, perm os.FileMode) error {
 	if werr != nil {
 		os.Remove(tmp)
 		return fmt.Errorf("writing %s: %w", path, werr)
+	}
+	if !sync {
+		return nil
 	}
 	if d, err := os.Open(dir); err == nil {
 		_ = d.Sync()
