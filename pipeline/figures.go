@@ -13,6 +13,7 @@ import (
 	"strata/cache"
 	"strata/pipeline/report"
 	"strata/stages"
+	"strata/stages/transform"
 )
 
 // sizeColor gives each size the same colour in every figure.
@@ -224,6 +225,7 @@ func (r *Results) studyFigures() []report.Figure {
 		}
 		figs = append(figs, report.Figure{Name: "scaling_beta" + stages.F(sc.Beta), Panels: []report.Panel{p}})
 	}
+	figs = append(figs, r.ladderFigures()...)
 	reach := report.Panel{Title: "average sign and reach of every size", XLabel: thetaLabel, YLabel: "|sign(θ)|", LogY: true}
 	for _, b := range r.Plan.Branches {
 		tr := r.Transform[b]
@@ -239,6 +241,105 @@ func (r *Results) studyFigures() []report.Figure {
 		figs = append(figs, report.Figure{Name: "reach", Panels: []report.Panel{reach}})
 	}
 	return figs
+}
+
+// ladderFigures draws, for a statistics ladder, the reach below the zero
+// against the statistics for every size (with the budget's prediction
+// from the lowest rung, dashed) and against N for every rung (rung →
+// lightness).
+func (r *Results) ladderFigures() []report.Figure {
+	st := r.Plan.Study
+	if len(st.Sample.Sweeps) < 2 {
+		return nil
+	}
+	var figs []report.Figure
+	byBeta := map[float64][]*BranchNodes{}
+	var betas []float64
+	for _, b := range r.Plan.Branches {
+		if byBeta[b.Branch.Beta] == nil {
+			betas = append(betas, b.Branch.Beta)
+		}
+		byBeta[b.Branch.Beta] = append(byBeta[b.Branch.Beta], b)
+	}
+	for _, beta := range betas {
+		stat := report.Panel{Title: "reach below the zero against statistics, β=" + stages.F(beta),
+			XLabel: "log_{10}(sweeps per sector)", YLabel: "reach below the zero"}
+		perRung := map[int][2][]float64{}
+		for _, b := range byBeta[beta] {
+			rows, ok := r.costRows(b)
+			if !ok {
+				continue
+			}
+			c := sizeColor(st, b.Branch.L)
+			var x, y []float64
+			for k, row := range rows {
+				x = append(x, math.Log10(row.sweeps))
+				y = append(y, row.reachBelow)
+				v := perRung[k]
+				v[0], v[1] = append(v[0], float64(b.N)), append(v[1], row.reachBelow)
+				perRung[k] = v
+			}
+			stat.Series = append(stat.Series, report.Series{Label: fmt.Sprintf("L=%d", b.Branch.L), Kind: report.Line, X: x, Y: y, Color: c})
+			if px, py := r.predictedReach(b, rows); len(px) > 0 {
+				stat.Series = append(stat.Series, report.Series{Label: fmt.Sprintf("L=%d budget", b.Branch.L), Kind: report.Dashed, X: px, Y: py, Color: c})
+			}
+		}
+		vsN := report.Panel{Title: "reach below the zero against N, β=" + stages.F(beta), XLabel: "N (sites)", YLabel: "reach below the zero"}
+		rungs := len(st.Sample.Sweeps)
+		for k := 0; k < rungs; k++ {
+			v := perRung[k]
+			vsN.Series = append(vsN.Series, report.Series{Label: fmt.Sprintf("%d sweeps", st.Sample.Sweeps[k]), Kind: report.Points,
+				X: v[0], Y: v[1], Color: 6, Shade: 0.7 * float64(rungs-1-k) / float64(max(1, rungs-1)), Glyph: k + 1})
+		}
+		figs = append(figs, report.Figure{Name: "cost_statistics_beta" + stages.F(beta), Panels: []report.Panel{stat}},
+			report.Figure{Name: "cost_size_beta" + stages.F(beta), Panels: []report.Panel{vsN}})
+	}
+	return figs
+}
+
+// predictedReach is the budget's prediction (probability ½, calibrated on
+// the lowest rung) of the reach below the zero at each rung's statistics:
+// the largest grid θ below the zero whose predicted sweeps do not exceed
+// the rung's.
+func (r *Results) predictedReach(b *BranchNodes, rows []costRow) (x, y []float64) {
+	pilot := b
+	if len(b.Rungs) > 0 {
+		pilot = b.Rungs[0]
+	}
+	tr := r.Transform[pilot]
+	if tr == nil {
+		return nil, nil
+	}
+	zero := float64(tr.ExactFirstZero)
+	if math.IsNaN(zero) && tr.FirstZero != nil {
+		zero = tr.FirstZero.Value
+	}
+	curve := &transform.Curve{Theta: tr.Theta, Sign: stages.Floats(tr.Sign), SignErr: stages.Floats(tr.SignErr)}
+	need := make([]float64, len(tr.Theta))
+	for i, th := range tr.Theta {
+		ex := math.NaN()
+		if tr.HasExact {
+			ex = float64(tr.SignExact[i])
+		}
+		p, err := transform.Budget(curve, transform.BudgetInput{N: b.N, Reach: float64(tr.Reach), Lo: float64(tr.ZeroBracket[0]),
+			Hi: float64(tr.ZeroBracket[1]), Zero: zero, X: th, Sweeps: rows[0].sweeps, Factor: r.Plan.Study.Transform.ReachFactor,
+			ExactSign: ex, Probability: 0.5})
+		need[i] = math.Inf(1)
+		if err == nil {
+			need[i] = p.Sweeps
+		}
+	}
+	for _, row := range rows {
+		reach := math.NaN()
+		for i, th := range tr.Theta {
+			if need[i] > row.sweeps {
+				break
+			}
+			reach = th
+		}
+		x, y = append(x, math.Log10(row.sweeps)), append(y, reach)
+	}
+	return x, y
 }
 
 // figureVersion salts the content hash of a figure: bump it when the
