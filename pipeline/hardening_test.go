@@ -311,3 +311,24 @@ func TestResourceEstimates(t *testing.T) {
 		t.Error("the refusal came after work")
 	}
 }
+
+// A panic inside one stage fails that node and what depends on it, with a
+// message, instead of killing the run.
+func TestStagePanicFailsOnlyItsNode(t *testing.T) {
+	dir := t.TempDir()
+	study := writeStudy(t, dir, "tiny.toml", tinyStudy)
+	var o, e strings.Builder
+	env := &env{stdout: &o, stderr: &e, outputHook: func(stage string, out []byte) []byte {
+		if stage == "transform" {
+			panic("injected")
+		}
+		return out
+	}}
+	code := env.studyCommand("run", []string{study, "--cache", filepath.Join(dir, "c"), "--out", filepath.Join(dir, "out")})
+	if code != ExitFail || !strings.Contains(e.String(), "internal error") || !strings.Contains(e.String(), "injected") {
+		t.Errorf("exit %d, stderr %q", code, e.String())
+	}
+	if n := countIndexEntries(filepath.Join(dir, "c")); n < 18 {
+		t.Errorf("only %d cache entries: the other nodes' results were lost", n)
+	}
+}

@@ -277,6 +277,13 @@ func fmtSeconds(s float64) string {
 
 // runNode computes one node unless its verified output is cached.
 func (r *Runner) runNode(n *Node) {
+	defer func() {
+		// a bug in one stage fails its node (and what depends on it), not
+		// the whole run: the other nodes' results still reach the cache
+		if p := recover(); p != nil {
+			n.Err = fmt.Errorf("internal error (please report): %v", p)
+		}
+	}()
 	for _, in := range n.Inputs {
 		if in.Err != nil {
 			n.Err = fmt.Errorf("skipped: input %s failed", in.Name())
