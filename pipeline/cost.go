@@ -69,7 +69,8 @@ func (r *Results) costRows(b *BranchNodes) (rows []costRow, ok bool) {
 		if cpu, ok := r.CPU[rb]; ok {
 			row.cpu = cpu
 		}
-		if i := gridIndexOf(tr.Theta, row.reachBelow); i >= 0 {
+		// a reach at the grid's end is a lower bound, not a measurement
+		if i := gridIndexOf(tr.Theta, row.reachBelow); i >= 0 && i < len(tr.Theta)-1 {
 			row.negLogSign = -math.Log(math.Abs(signAt(tr, i)))
 		}
 		row.refErr = interpolate(tr.Theta, stages.Floats(tr.SignErr), thetaRef)
@@ -130,34 +131,16 @@ func olsSlope(x, y []float64) float64 {
 	return (n*sxy - sx*sy) / (n*sxx - sx*sx)
 }
 
-// costSummary fits the slopes; each error is the standard deviation of the
-// same fits on the error replicas, whose reach is recomputed from each
-// replica's sign with the rung's σ (the reach rule of the transform, capped
-// below the zero).
-func (r *Results) costSummary(b *BranchNodes) *CostSummary {
-	rows, ok := r.costRows(b)
-	if !ok {
-		return nil
-	}
-	bs, sw := r.rungsOf(b)
-	lnS := make([]float64, len(sw))
-	for i, s := range sw {
-		lnS[i] = math.Log(s)
-	}
-	y1, y2 := make([]float64, len(rows)), make([]float64, len(rows))
-	for i, row := range rows {
-		y1[i], y2[i] = row.negLogSign, row.reachBelow*row.reachBelow
-	}
-	out := &CostSummary{Slope: stages.ValErr{Value: olsSlope(lnS, y1)}, ThetaSlope: stages.ValErr{Value: olsSlope(lnS, y2)}}
-	// per-replica reaches
+// replicaCost recomputes, for every rung (smallest first) and error
+// replica, the reach below the zero from the replica's sign with the rung's
+// σ (the transform's reach rule), and −ln|sign| there (exact where known).
+func (r *Results) replicaCost(b *BranchNodes) (reach, negLog [][]float64, ok bool) {
+	bs, _ := r.rungsOf(b)
 	factor := r.Plan.Study.Transform.ReachFactor
-	var reps [][]float64 // [rung][replica] reach below zero
-	var repSigns [][]float64
-	nrep := -1
 	for _, rb := range bs {
 		s, tr := r.Stitch[rb], r.Transform[rb]
 		if s == nil || tr == nil {
-			return out
+			return nil, nil, false
 		}
 		c := transform.Evaluate(transform.NewTable(s.N, tr.Theta), s.LnRho, s.Replicas)
 		limit := math.Inf(1)
@@ -168,30 +151,51 @@ func (r *Results) costSummary(b *BranchNodes) *CostSummary {
 		}
 		var rr, rs []float64
 		for _, sign := range c.ReplicaSign {
-			reach, idx := math.NaN(), -1
+			rch, idx := math.NaN(), -1
 			for i, th := range tr.Theta {
 				if th >= limit || math.Abs(sign[i]) < factor*float64(tr.SignErr[i]) {
 					break
 				}
-				reach, idx = th, i
+				rch, idx = th, i
 			}
-			rr = append(rr, reach)
 			v := math.NaN()
-			if idx >= 0 {
+			if idx >= 0 && idx < len(tr.Theta)-1 {
 				v = -math.Log(math.Abs(signAtOr(tr, idx, sign[idx])))
 			}
-			rs = append(rs, v)
+			rr, rs = append(rr, rch), append(rs, v)
 		}
-		if nrep < 0 || len(rr) < nrep {
-			nrep = len(rr)
-		}
-		reps, repSigns = append(reps, rr), append(repSigns, rs)
+		reach, negLog = append(reach, rr), append(negLog, rs)
+	}
+	return reach, negLog, true
+}
+
+// costSummary fits the slopes (rungs whose reach is cut by the grid's end
+// are left out of the sign slope); each error is the standard deviation of the
+// same fits on the error replicas (replicaCost).
+func (r *Results) costSummary(b *BranchNodes) *CostSummary {
+	rows, ok := r.costRows(b)
+	if !ok {
+		return nil
+	}
+	_, sw := r.rungsOf(b)
+	lnS := make([]float64, len(sw))
+	for i, s := range sw {
+		lnS[i] = math.Log(s)
+	}
+	y1, y2 := make([]float64, len(rows)), make([]float64, len(rows))
+	for i, row := range rows {
+		y1[i], y2[i] = row.negLogSign, row.reachBelow*row.reachBelow
+	}
+	out := &CostSummary{Slope: stages.ValErr{Value: olsSlope(lnS, y1)}, ThetaSlope: stages.ValErr{Value: olsSlope(lnS, y2)}}
+	reach, negLog, ok := r.replicaCost(b)
+	if !ok {
+		return out
 	}
 	var s1, s2 []float64
-	for j := 0; j < nrep; j++ {
-		a, c := make([]float64, len(bs)), make([]float64, len(bs))
-		for k := range bs {
-			a[k], c[k] = repSigns[k][j], reps[k][j]*reps[k][j]
+	for j := 0; j < minLen(reach); j++ {
+		a, c := make([]float64, len(sw)), make([]float64, len(sw))
+		for k := range sw {
+			a[k], c[k] = negLog[k][j], reach[k][j]*reach[k][j]
 		}
 		if v := olsSlope(lnS, a); !math.IsNaN(v) {
 			s1 = append(s1, v)
@@ -202,6 +206,88 @@ func (r *Results) costSummary(b *BranchNodes) *CostSummary {
 	}
 	out.Slope.Error = analysis.StdDev(s1)
 	out.ThetaSlope.Error = analysis.StdDev(s2)
+	return out
+}
+
+func minLen(x [][]float64) int {
+	n := -1
+	for _, v := range x {
+		if n < 0 || len(v) < n {
+			n = len(v)
+		}
+	}
+	return max(n, 0)
+}
+
+// CostFit is, for one β and one rung of a ladder, the fit
+// −ln|sign(reach_below_zero)| = a + b ln N over the sizes (b with the
+// standard deviation of the same fit over the error replicas).
+type CostFit struct {
+	Beta   float64       `json:"beta"`
+	Sweeps int           `json:"sweeps"`
+	B      stages.ValErr `json:"b"`
+	Sizes  []int         `json:"sizes"`
+}
+
+// costFits fits every (β, rung) of a ladder study over its sizes.
+func (r *Results) costFits() []CostFit {
+	st := r.Plan.Study
+	if len(st.Sample.Sweeps) < 2 {
+		return nil
+	}
+	var out []CostFit
+	byBeta := map[float64][]*BranchNodes{}
+	var betas []float64
+	for _, b := range r.Plan.Branches {
+		if byBeta[b.Branch.Beta] == nil {
+			betas = append(betas, b.Branch.Beta)
+		}
+		byBeta[b.Branch.Beta] = append(byBeta[b.Branch.Beta], b)
+	}
+	for _, beta := range betas {
+		bs := byBeta[beta]
+		if len(bs) < 2 {
+			continue
+		}
+		var lnN []float64
+		var sizes []int
+		var rows [][]costRow
+		var reps [][][]float64
+		for _, b := range bs {
+			rw, ok := r.costRows(b)
+			_, nl, ok2 := r.replicaCost(b)
+			if !ok || !ok2 {
+				return out
+			}
+			lnN, sizes = append(lnN, math.Log(float64(b.N))), append(sizes, b.Branch.L)
+			rows, reps = append(rows, rw), append(reps, nl)
+		}
+		for k, sw := range st.Sample.Sweeps {
+			y := make([]float64, len(bs))
+			for i := range bs {
+				y[i] = rows[i][k].negLogSign
+			}
+			fit := CostFit{Beta: beta, Sweeps: sw, Sizes: sizes, B: stages.ValErr{Value: olsSlope(lnN, y)}}
+			var bsj []float64
+			n := -1
+			for i := range bs {
+				if n < 0 || len(reps[i][k]) < n {
+					n = len(reps[i][k])
+				}
+			}
+			for j := 0; j < n; j++ {
+				yj := make([]float64, len(bs))
+				for i := range bs {
+					yj[i] = reps[i][k][j]
+				}
+				if v := olsSlope(lnN, yj); !math.IsNaN(v) {
+					bsj = append(bsj, v)
+				}
+			}
+			fit.B.Error = analysis.StdDev(bsj)
+			out = append(out, fit)
+		}
+	}
 	return out
 }
 

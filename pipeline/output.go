@@ -77,6 +77,8 @@ type Summary struct {
 	Dimension int                 `json:"dimension"`
 	Branches  []BranchSummary     `json:"branches"`
 	Scaling   []stages.ScalingOut `json:"scaling"`
+	// CostFits: statistics ladders only, per β and rung.
+	CostFits []CostFit `json:"cost_fits,omitempty"`
 }
 
 func ptr(x float64) *float64 {
@@ -213,6 +215,7 @@ func (r *Results) BuildSummary() Summary {
 		}
 		s.Branches = append(s.Branches, bs)
 	}
+	s.CostFits = r.costFits()
 	for _, sn := range r.Plan.Scaling {
 		if v := r.Scaling[sn]; v != nil {
 			s.Scaling = append(s.Scaling, *v)
