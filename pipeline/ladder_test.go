@@ -71,6 +71,9 @@ func TestLadderNestedRungs(t *testing.T) {
 	if s.Branches[0].Cost == nil {
 		t.Error("no cost block in summary.json")
 	}
+	if len(s.CostFits) != 3 || s.CostFits[0].Sweeps != 1000 || len(s.CostFits[0].Sizes) != 2 {
+		t.Errorf("cost_fits: %+v", s.CostFits)
+	}
 	if _, err := os.Stat(filepath.Join(so, "L12_beta0.4", "cost.csv")); err == nil {
 		t.Error("a single-rung study wrote cost.csv")
 	}
