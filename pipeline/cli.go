@@ -596,6 +596,9 @@ func (e *env) show(p *Plan, c *cache.Cache) int {
 		fz := "—"
 		if b.FirstZero != nil {
 			fz = fmt.Sprintf("%.6g ± %.2g", b.FirstZero.Value, b.FirstZero.Error)
+			if b.FirstZero.Marginal {
+				fz += " (marginal)"
+			}
 		}
 		ex := "—"
 		if b.ExactFirstZero != nil {

@@ -442,6 +442,9 @@ func (r *Results) writeReport(outDir string, man Manifest, studyText string) (st
 			Exact: dash(b.ExactFirstZero, "%.6g"), Reach: dash(b.Reach, "%.4g")}
 		if b.FirstZero != nil {
 			row.FirstZero = fmt.Sprintf("%.6g ± %.2g", b.FirstZero.Value, b.FirstZero.Error)
+			if b.FirstZero.Marginal {
+				row.FirstZero += " (marginal: not in the scaling fit)"
+			}
 		}
 		if b.ReachIsLowerBound {
 			row.Reach = "≥ " + row.Reach

@@ -42,13 +42,13 @@ type Manifest struct {
 
 // BranchSummary is one branch in summary.json.
 type BranchSummary struct {
-	Size              int            `json:"size"`
-	Beta              float64        `json:"beta"`
-	Dir               string         `json:"dir"`
-	FirstZero         *stages.ValErr `json:"first_zero"`
-	Reach             *float64       `json:"reach"`
-	ReachIsLowerBound bool           `json:"reach_is_lower_bound"`
-	ReachBelowZero    *float64       `json:"reach_below_zero"`
+	Size              int          `json:"size"`
+	Beta              float64      `json:"beta"`
+	Dir               string       `json:"dir"`
+	FirstZero         *ZeroSummary `json:"first_zero"`
+	Reach             *float64     `json:"reach"`
+	ReachIsLowerBound bool         `json:"reach_is_lower_bound"`
+	ReachBelowZero    *float64     `json:"reach_below_zero"`
 	// CPUSeconds sums the sample shards' CPU time (provenance: it differs
 	// between runs and is left out of bit-identity and baselines).
 	CPUSeconds *float64 `json:"cpu_seconds"`
@@ -60,6 +60,16 @@ type BranchSummary struct {
 	Fit               []FitSummary         `json:"fit,omitempty"`
 	Routes            []stages.RouteResult `json:"routes,omitempty"`
 	Warnings          []string             `json:"warnings,omitempty"`
+}
+
+// ZeroSummary is a branch's first zero with its error; Marginal is true
+// when its resolution depended on a fluctuation (stages.MarginalDepth):
+// such zeros are left out of the scaling fit.
+type ZeroSummary struct {
+	Value     float64 `json:"value"`
+	Error     float64 `json:"error"`
+	Marginal  bool    `json:"marginal"`
+	LobeDepth float64 `json:"lobe_depth"` // deepest −sign/σ after the zero
 }
 
 // FitSummary is one smoothing degree of a branch.
@@ -186,7 +196,10 @@ func (r *Results) BuildSummary() Summary {
 	for _, b := range r.Plan.Branches {
 		bs := BranchSummary{Size: b.Branch.L, Beta: b.Branch.Beta, Dir: b.Branch.Dir()}
 		if t := r.Transform[b]; t != nil {
-			bs.FirstZero = t.FirstZero
+			if t.FirstZero != nil {
+				bs.FirstZero = &ZeroSummary{Value: t.FirstZero.Value, Error: t.FirstZero.Error, Marginal: t.ZeroMarginal,
+					LobeDepth: float64(t.ZeroLobeDepth)}
+			}
 			bs.Reach = ptr(float64(t.Reach))
 			bs.ReachIsLowerBound = t.ReachLowerBound
 			bs.ReachBelowZero = ptr(float64(t.ReachBelowZero))

@@ -43,6 +43,7 @@ type ScalingPoint struct {
 	Theta1      *float64 `json:"theta1"`
 	Theta1Err   *float64 `json:"theta1_err"`
 	Theta1Exact *float64 `json:"theta1_exact"`
+	Marginal    bool     `json:"marginal,omitempty"` // left out of the fit
 }
 
 func fptr(x float64) *float64 {
@@ -80,9 +81,10 @@ func Scaling(p ScalingParams) Task {
 				if t.FirstZero != nil {
 					sp.Theta1, sp.Theta1Err = fptr(t.FirstZero.Value), fptr(t.FirstZero.Error)
 				}
+				sp.Marginal = t.ZeroMarginal
 				out.Points = append(out.Points, sp)
-				if t.FirstZero == nil || p.Sizes[i] < p.MinSize || !(t.FirstZero.Error > 0) {
-					continue
+				if t.FirstZero == nil || t.ZeroMarginal || p.Sizes[i] < p.MinSize || !(t.FirstZero.Error > 0) {
+					continue // marginal zeros are kept out of the fit
 				}
 				pts = append(pts, fss.Point{L: p.Sizes[i], Theta: t.FirstZero.Value, Err: t.FirstZero.Error})
 				roots = append(roots, t.ZeroRoots)

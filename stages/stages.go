@@ -47,8 +47,8 @@ const (
 	stitchVersion       = 2
 	exactVersion        = 3
 	exactDensityVersion = 1
-	transformVersion    = 5
-	scalingVersion      = 3
+	transformVersion    = 6
+	scalingVersion      = 4
 	fitVersion          = 2
 	routesVersion       = 1
 )
