@@ -140,3 +140,61 @@ func TestBudgetHonesty(t *testing.T) {
 		t.Errorf("median S*/S_min = %v, want ≤ 4", med)
 	}
 }
+
+// Budget honesty on the 8×8 torus at β = 0.2 (exact sign from the integer
+// transfer-matrix counts, checked against enumeration and Kaufman), target
+// X = 0.245 below the first zero 0.2725, 10 seeds, with the same two checks.
+func TestBudgetHonestyTorus(t *testing.T) {
+	if testing.Short() {
+		t.Skip("10 pilots and ladders on 8×8")
+	}
+	const l, beta, x, prob = 8, 0.2, 0.245, 0.9
+	grid := TransformParams{ThetaMin: 0, ThetaMax: 0.27, Points: 55, ReachFactor: 2, ZeroFraction: 0.95, MaxBits: 4096}
+	counts, err := exact.TorusCounts(l)
+	if err != nil {
+		t.Fatal(err)
+	}
+	ex := &ExactOut{Kind: ExactCounts, N: l * l, Beta: beta, Counts: counts}
+	sg, _ := ExactOnGrid(ex, []float64{x}, 4096)
+	exactSign := float64(sg[0])
+	zero, _ := firstZeroScan(l*l, counts.LnRho(beta), counts.LnRhoErr(beta))
+	reaches := func(chunks int, seed uint64) bool {
+		_, tr := runBranch(t, 2, l, beta, chunks, 1000, seed, grid)
+		return float64(tr.ReachBelowZero) >= x-1e-9
+	}
+	const seeds = 10
+	hits := 0
+	var ratios []float64
+	for s := uint64(1); s <= seeds; s++ {
+		_, pilot := runBranch(t, 2, l, beta, 2, 1000, 500+s, grid)
+		p, err := transform.Budget(curveOf(pilot), transform.BudgetInput{N: l * l, Reach: float64(pilot.Reach), Lo: math.NaN(), Hi: math.NaN(),
+			Zero: zero, X: x, Sweeps: 2000, Factor: 2, ExactSign: exactSign, Probability: prob})
+		if err != nil {
+			t.Fatal(err)
+		}
+		star := int(math.Ceil(p.Sweeps / 1000))
+		if star < 8 {
+			t.Fatalf("seed %d: S* = %v too small for a ×2 ladder below it", s, p.Sweeps)
+		}
+		if reaches(star, 900+s) {
+			hits++
+		}
+		smallest := math.NaN()
+		for _, c := range []int{star / 8, star / 4, star / 2, star, 2 * star} {
+			if reaches(c, 700+s) {
+				smallest = float64(c)
+				break
+			}
+		}
+		ratios = append(ratios, float64(star)/smallest)
+	}
+	lo, hi := binomialBand99(seeds, prob)
+	sort.Float64s(ratios)
+	t.Logf("reached %d/%d (band [%d, %d]); S*/S_min: %v", hits, seeds, lo, hi, ratios)
+	if hits < lo || hits > hi {
+		t.Errorf("%d of %d runs with S* reached θ = %v; the 99%% band of P = %v is [%d, %d]", hits, seeds, x, prob, lo, hi)
+	}
+	if med := ratios[len(ratios)/2]; !(med <= 4) {
+		t.Errorf("median S*/S_min = %v, want ≤ 4", med)
+	}
+}
