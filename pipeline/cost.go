@@ -229,6 +229,19 @@ type CostFit struct {
 	Sizes  []int         `json:"sizes"`
 }
 
+// branchesByBeta groups the branches by β, in plan order.
+func (p *Plan) branchesByBeta() ([]float64, map[float64][]*BranchNodes) {
+	byBeta := map[float64][]*BranchNodes{}
+	var betas []float64
+	for _, b := range p.Branches {
+		if byBeta[b.Branch.Beta] == nil {
+			betas = append(betas, b.Branch.Beta)
+		}
+		byBeta[b.Branch.Beta] = append(byBeta[b.Branch.Beta], b)
+	}
+	return betas, byBeta
+}
+
 // costFits fits every (β, rung) of a ladder study over its sizes.
 func (r *Results) costFits() []CostFit {
 	st := r.Plan.Study
@@ -236,14 +249,7 @@ func (r *Results) costFits() []CostFit {
 		return nil
 	}
 	var out []CostFit
-	byBeta := map[float64][]*BranchNodes{}
-	var betas []float64
-	for _, b := range r.Plan.Branches {
-		if byBeta[b.Branch.Beta] == nil {
-			betas = append(betas, b.Branch.Beta)
-		}
-		byBeta[b.Branch.Beta] = append(byBeta[b.Branch.Beta], b)
-	}
+	betas, byBeta := r.Plan.branchesByBeta()
 	for _, beta := range betas {
 		bs := byBeta[beta]
 		if len(bs) < 2 {

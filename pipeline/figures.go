@@ -253,14 +253,7 @@ func (r *Results) ladderFigures() []report.Figure {
 		return nil
 	}
 	var figs []report.Figure
-	byBeta := map[float64][]*BranchNodes{}
-	var betas []float64
-	for _, b := range r.Plan.Branches {
-		if byBeta[b.Branch.Beta] == nil {
-			betas = append(betas, b.Branch.Beta)
-		}
-		byBeta[b.Branch.Beta] = append(byBeta[b.Branch.Beta], b)
-	}
+	betas, byBeta := r.Plan.branchesByBeta()
 	for _, beta := range betas {
 		stat := report.Panel{Title: "reach below the zero against statistics, β=" + stages.F(beta),
 			XLabel: "log_{10}(sweeps per sector)", YLabel: "reach below the zero"}
