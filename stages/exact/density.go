@@ -100,7 +100,7 @@ func DensityAvailable(d, l int) bool {
 // front over the column's largest one, by at most e^{2β·B} with B the
 // bonds between the front and the unplaced sites (≤ d·L^{d−1}). Requiring
 // 2^N · 2^−1022 · e^{2βB} ≤ 2^−60 (2^N bounds the number of paths) gives
-// β ≤ ((962 − N)·ln 2)/(2B). At 12×12: β ≤ 11.6; at 4³: β ≤ 9.6.
+// β ≤ ((962 − N)·ln 2)/(2B). At 12×12: β ≤ 11.8; at 4³: β ≤ 6.5.
 func DensityMaxBeta(d, l int) float64 {
 	n, p := 1, 1
 	for i := 0; i < d; i++ {
