@@ -136,3 +136,22 @@ func TestExactDensityOutputs(t *testing.T) {
 		t.Errorf("without a cache: exit %d, %q", code, stderr)
 	}
 }
+
+// strata exact --sectors monomer prints ln[D(n)/D(0)] of the link
+// representation from exact counts (3×3 torus at β = 0.3: D(2)/D(0) =
+// 15.8344238770326, the check value verified by enumeration in
+// ../shared/PHYSICS.md) and refuses a floating-point density.
+func TestExactMonomerCommand(t *testing.T) {
+	code, stdout, stderr := runCLI(t, "exact", "--dimension", "2", "--size", "3", "--beta", "0.3", "--sectors", "monomer")
+	if code != 0 || !strings.Contains(stdout, "n,ln_D_exact\n0,0\n2,") {
+		t.Fatalf("exit %d\n%s%s", code, stdout, stderr)
+	}
+	line := strings.Split(strings.Split(stdout, "\n2,")[1], "\n")[0]
+	v, err := strconv.ParseFloat(line, 64)
+	if err != nil || math.Abs(math.Exp(v)-15.8344238770326) > 1e-11 {
+		t.Errorf("D(2)/D(0) = exp(%q)", line)
+	}
+	if code, _, stderr := runCLI(t, "exact", "--dimension", "2", "--size", "10", "--beta", "0.3", "--sectors", "monomer"); code != ExitUsage || !strings.Contains(stderr, "integer counts") {
+		t.Errorf("monomer from a floating-point density: exit %d, %q", code, stderr)
+	}
+}
