@@ -1,0 +1,224 @@
+// Package links samples the high-temperature (link and monomer)
+// representation of the Ising model on a periodic L^d lattice: link
+// configurations k ⊆ bonds with weight t^{|k|}, t = tanh β, in a sector of
+// fixed n, the number of odd-degree sites (monomers). Its density of states
+// D_β(n) = Σ_{k: n odd sites} t^{|k|} gives the partition function at
+// imaginary field in the dual form sign(θ) = cos^N θ Σ_n (−1)^{n/2}
+// (D(n)/D(0)) tanⁿθ (expansion e^{βss'} = cosh β (1 + t ss'), e^{iθs} =
+// cos θ (1 + i s tan θ); R. B. Griffiths, C. A. Hurst, S. Sherman, J. Math.
+// Phys. 11, 790 (1970), from memory; the worm picture: N. Prokof'ev,
+// B. Svistunov, Phys. Rev. Lett. 87, 160601 (2001)).
+//
+// The ratio D(n+2)/D(n) follows from the two-sided identity (checked by
+// enumeration in ../shared/PHYSICS.md)
+//
+//	D(n+2)/D(n) = ⟨Σ_{bonds with both ends even} t^{1−2k_b}⟩_n / ⟨#bonds with both ends odd⟩_{n+2},
+//
+// so a chain at fixed n measures A = Σ_{even-even} t^{1−2k} (the numerator
+// for n → n+2) and B = #{odd-odd bonds} (the denominator for n−2 → n).
+package links
+
+import (
+	"fmt"
+	"math"
+
+	"strata/stages/lattice"
+	"strata/stages/rng"
+)
+
+// Lattice is the bond structure the chain needs.
+type Lattice struct {
+	D, L, N int
+	Ends    [][2]int32 // bond b joins Ends[b][0] and Ends[b][1] (d·N bonds)
+	Plaq    [][4]int32 // bonds of each elementary plaquette (d ≥ 2)
+	Lines   [][][]int32
+	// Lines[a] lists, for axis a, every line of L bonds along a (a
+	// winding loop); flipping one toggles the winding parity along a.
+}
+
+// NewLattice builds the bonds, plaquettes and winding lines of L^d.
+func NewLattice(d, l int) (*Lattice, error) {
+	lat, err := lattice.New(d, l)
+	if err != nil {
+		return nil, err
+	}
+	n := lat.N
+	out := &Lattice{D: d, L: l, N: n}
+	// bond (i, a): from site i to its +a neighbour
+	bond := func(i, a int) int32 { return int32(i*d + a) }
+	out.Ends = make([][2]int32, n*d)
+	for i := 0; i < n; i++ {
+		for a := 0; a < d; a++ {
+			out.Ends[i*d+a] = [2]int32{int32(i), lat.Nbr[i*lat.Z+2*a]}
+		}
+	}
+	plus := func(i, a int) int { return int(lat.Nbr[i*lat.Z+2*a]) }
+	for i := 0; i < n; i++ {
+		for a := 0; a < d; a++ {
+			for c := a + 1; c < d; c++ {
+				ia, ic := plus(i, a), plus(i, c)
+				out.Plaq = append(out.Plaq, [4]int32{bond(i, a), bond(ia, c), bond(ic, a), bond(i, c)})
+			}
+		}
+	}
+	out.Lines = make([][][]int32, d)
+	stride := 1
+	for a := 0; a < d; a++ {
+		for i := 0; i < n; i++ {
+			if (i/stride)%l != 0 {
+				continue // one line per site of the slice x_a = 0
+			}
+			var line []int32
+			j := i
+			for s := 0; s < l; s++ {
+				line = append(line, bond(j, a))
+				j = plus(j, a)
+			}
+			out.Lines[a] = append(out.Lines[a], line)
+		}
+		stride *= l
+	}
+	return out, nil
+}
+
+// Chain is a Metropolis chain at fixed n. A sweep is d·N single-bond
+// proposals (a bond with exactly one odd end is flipped, which moves a
+// monomer; other bonds would change n and are skipped), N·d(d−1)/2
+// plaquette proposals and one winding-line proposal per axis (both leave
+// every parity unchanged); each flip is accepted with min(1, t^{Δ|k|}).
+type Chain struct {
+	Lat           *Lattice
+	Beta          float64
+	Monomers      int // n: even, 0 ≤ n ≤ N
+	Therm, Sweeps int
+	Seed          uint64
+	// NoWinding drops the winding-line moves (for the test that shows the
+	// chain is then not ergodic at n = 0).
+	NoWinding bool
+}
+
+// Run returns, per measured sweep, A = Σ_{even-even bonds} t^{1−2k_b} and
+// B = #{odd-odd bonds}, row-major (sweeps × 2).
+func (c Chain) Run() ([]float64, error) {
+	lt := c.Lat
+	if c.Monomers%2 != 0 || c.Monomers < 0 || c.Monomers > lt.N {
+		return nil, fmt.Errorf("links: %d monomers on %d sites (need even, 0 … N)", c.Monomers, lt.N)
+	}
+	t := math.Tanh(c.Beta)
+	if !(t > 0) {
+		return nil, fmt.Errorf("links: β = %v gives t = tanh β = %v (need β > 0)", c.Beta, t)
+	}
+	r := rng.NewRand(c.Seed)
+	nb := len(lt.Ends)
+	k := make([]bool, nb)
+	odd := make([]bool, lt.N)
+	if err := initial(lt, k, odd, c.Monomers); err != nil {
+		return nil, err
+	}
+	flip := func(b int32) {
+		k[b] = !k[b]
+		e := lt.Ends[b]
+		odd[e[0]] = !odd[e[0]]
+		odd[e[1]] = !odd[e[1]]
+	}
+	accept := func(delta int) bool { // Δ|k|
+		if delta <= 0 {
+			return true
+		}
+		return r.Float64() < math.Pow(t, float64(delta))
+	}
+	sweep := func() {
+		for p := 0; p < nb; p++ {
+			b := int32(r.Intn(nb))
+			e := lt.Ends[b]
+			if e[0] == e[1] || odd[e[0]] == odd[e[1]] {
+				continue // both ends even or both odd: would change n
+			}
+			d := 1
+			if k[b] {
+				d = -1
+			}
+			if accept(d) {
+				flip(b)
+			}
+		}
+		for p := 0; p < len(lt.Plaq); p++ {
+			pl := lt.Plaq[r.Intn(len(lt.Plaq))]
+			d := 0
+			for _, b := range pl {
+				if k[b] {
+					d--
+				} else {
+					d++
+				}
+			}
+			if accept(d) {
+				for _, b := range pl {
+					k[b] = !k[b] // parities unchanged: each site of a plaquette has two of its bonds
+				}
+			}
+		}
+		if !c.NoWinding {
+			for a := range lt.Lines {
+				line := lt.Lines[a][r.Intn(len(lt.Lines[a]))]
+				d := 0
+				for _, b := range line {
+					if k[b] {
+						d--
+					} else {
+						d++
+					}
+				}
+				if accept(d) {
+					for _, b := range line {
+						k[b] = !k[b]
+					}
+				}
+			}
+		}
+	}
+	for s := 0; s < c.Therm; s++ {
+		sweep()
+	}
+	out := make([]float64, 0, 2*c.Sweeps)
+	for s := 0; s < c.Sweeps; s++ {
+		sweep()
+		a, bcount := 0.0, 0.0
+		for b, e := range lt.Ends {
+			switch {
+			case !odd[e[0]] && !odd[e[1]]:
+				if k[b] {
+					a += 1 / t
+				} else {
+					a += t
+				}
+			case odd[e[0]] && odd[e[1]]:
+				bcount++
+			}
+		}
+		out = append(out, a, bcount)
+	}
+	return out, nil
+}
+
+// initial sets a configuration with exactly n odd sites: n/2 disjoint
+// bonds chosen greedily in bond order (a maximal matching, enough on the
+// periodic lattices here); thermalization then randomizes it.
+func initial(lt *Lattice, k, odd []bool, n int) error {
+	placed := 0
+	for b, e := range lt.Ends {
+		if placed == n/2 {
+			break
+		}
+		if k[b] || odd[e[0]] || odd[e[1]] {
+			continue
+		}
+		k[b] = true
+		odd[e[0]], odd[e[1]] = true, true
+		placed++
+	}
+	if placed < n/2 {
+		return fmt.Errorf("links: cannot place %d monomers on %d sites", n, lt.N)
+	}
+	return nil
+}
