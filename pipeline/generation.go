@@ -51,9 +51,11 @@ func newGeneration(link string) (*generation, error) {
 			if !filepath.IsAbs(target) {
 				target = filepath.Join(filepath.Dir(link), target)
 			}
-			g.prev = target
-			if k, err := strconv.Atoi(strings.TrimPrefix(target, genPrefix(link))); err == nil {
+			if k, ok := genNumber(link, target); ok {
 				n = k
+			}
+			if _, err := os.Stat(target); err == nil {
+				g.prev = target // a link whose target is gone starts afresh
 			}
 		case fi.IsDir():
 			// an output folder from before generations: it becomes generation 0
@@ -94,6 +96,17 @@ func newGeneration(link string) (*generation, error) {
 		}
 	}
 	return g, nil
+}
+
+// genNumber reports whether dir is one of link's generation folders and
+// its number.
+func genNumber(link, dir string) (int, bool) {
+	prefix := genPrefix(link)
+	if !strings.HasPrefix(dir, prefix) {
+		return 0, false
+	}
+	k, err := strconv.Atoi(strings.TrimPrefix(dir, prefix))
+	return k, err == nil
 }
 
 // linkTree hard-links every regular file of src into dst (copying where
@@ -144,8 +157,8 @@ func (g *generation) finish(man Manifest) error {
 		os.Remove(tmp)
 		return err
 	}
-	if g.prev != "" {
-		os.RemoveAll(g.prev)
+	if _, ours := genNumber(g.link, g.prev); ours {
+		os.RemoveAll(g.prev) // never a folder a user's own link pointed to
 	}
 	g.removeLeftovers()
 	return nil

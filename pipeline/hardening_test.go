@@ -332,3 +332,35 @@ func TestStagePanicFailsOnlyItsNode(t *testing.T) {
 		t.Errorf("only %d cache entries: the other nodes' results were lost", n)
 	}
 }
+
+// An output path that is a link the user made to a folder of theirs is
+// taken over without deleting that folder; a link whose generation is gone
+// starts afresh.
+func TestOutputLinkOfTheUser(t *testing.T) {
+	dir := t.TempDir()
+	study := writeStudy(t, dir, "tiny.toml", tinyStudy)
+	mine := filepath.Join(dir, "mine")
+	os.MkdirAll(mine, 0o777)
+	os.WriteFile(filepath.Join(mine, "keep.txt"), []byte("x"), 0o644)
+	out := filepath.Join(dir, "out")
+	if err := os.Symlink(mine, out); err != nil {
+		t.Fatal(err)
+	}
+	if code, _, e := runCLI(t, "run", study, "--out", out, "--cache", filepath.Join(dir, "c")); code != 0 {
+		t.Fatal(e)
+	}
+	if _, err := os.Stat(filepath.Join(mine, "keep.txt")); err != nil {
+		t.Error("the user's folder behind the link was removed")
+	}
+	if _, err := os.Stat(filepath.Join(out, "summary.json")); err != nil {
+		t.Error("no outputs behind the link")
+	}
+	gen, _ := filepath.EvalSymlinks(out)
+	os.RemoveAll(gen) // the generation vanishes
+	if code, _, e := runCLI(t, "run", study, "--out", out, "--cache", filepath.Join(dir, "c")); code != 0 {
+		t.Fatalf("rerun after the generation vanished: %s", e)
+	}
+	if _, err := os.Stat(filepath.Join(out, "summary.json")); err != nil {
+		t.Error("no outputs after the rerun")
+	}
+}
