@@ -1,6 +1,7 @@
 package links
 
 import (
+	"fmt"
 	"math"
 	"testing"
 
@@ -136,4 +137,27 @@ func mustLat(t *testing.T, d, l int) *lattice.Lattice {
 		t.Fatal(err)
 	}
 	return x
+}
+
+// BenchmarkChain reports ns per attempted move (bond, plaquette and
+// winding proposals of a sweep, measurement included) of the fixed-n link
+// chain in d = 1, 2, 3.
+func BenchmarkChain(b *testing.B) {
+	for _, c := range []struct{ d, l, n int }{{1, 4096, 64}, {2, 64, 64}, {3, 16, 64}} {
+		b.Run(fmt.Sprintf("d%d_L%d", c.d, c.l), func(b *testing.B) {
+			lt, err := NewLattice(c.d, c.l)
+			if err != nil {
+				b.Fatal(err)
+			}
+			moves := len(lt.Ends) + len(lt.Plaq) + len(lt.Lines)
+			const sweeps = 20
+			b.ResetTimer()
+			for i := 0; i < b.N; i++ {
+				if _, err := (Chain{Lat: lt, Beta: 0.3, Monomers: c.n, Sweeps: sweeps, Seed: uint64(i)}).Run(); err != nil {
+					b.Fatal(err)
+				}
+			}
+			b.ReportMetric(float64(b.Elapsed().Nanoseconds())/float64(b.N*sweeps*moves), "ns/move")
+		})
+	}
 }
