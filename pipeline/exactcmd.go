@@ -112,13 +112,8 @@ func (e *env) exactCommand(args []string) int {
 	if *sectors == "monomer" {
 		return e.exactMonomer(c, *d, *l, *beta, kind, in, *bits)
 	}
-	b, err := e.runCached(c, newNode(stages.Exact(*d, *l, *beta, kind), "", "", in...))
-	if err != nil {
-		fmt.Fprintf(e.stderr, "strata exact: %v\n", err)
-		return ExitFail
-	}
 	var ex stages.ExactOut
-	if err := json.Unmarshal(b, &ex); err != nil {
+	if err := e.runDecode(c, newNode(stages.Exact(*d, *l, *beta, kind), "", "", in...), &ex); err != nil {
 		fmt.Fprintf(e.stderr, "strata exact: %v\n", err)
 		return ExitFail
 	}
@@ -159,6 +154,15 @@ func (e *env) exactCommand(args []string) int {
 	fmt.Fprint(e.stdout, string(csvTable([]string{"theta", "sign_exact", "im_m_exact"},
 		[][]float64{grid, stages.Floats(sign), stages.Floats(imm)})))
 	return ExitOK
+}
+
+// runDecode runs a node (runCached) and decodes its JSON output into v.
+func (e *env) runDecode(c *cache.Cache, n *Node, v any) error {
+	b, err := e.runCached(c, n)
+	if err != nil {
+		return err
+	}
+	return json.Unmarshal(b, v)
 }
 
 // runCached computes a node and its inputs, reusing and filling the cache
@@ -204,13 +208,8 @@ func (e *env) exactMonomer(c *cache.Cache, d, l int, beta float64, kind string, 
 	if kind == stages.ExactRing {
 		rho = exact.RingRho(n, beta)
 	} else {
-		b, err := e.runCached(c, in[0])
-		if err != nil {
-			fmt.Fprintf(e.stderr, "strata exact: %v\n", err)
-			return ExitFail
-		}
 		var counts exact.Counts
-		if err := json.Unmarshal(b, &counts); err != nil {
+		if err := e.runDecode(c, in[0], &counts); err != nil {
 			fmt.Fprintf(e.stderr, "strata exact: %v\n", err)
 			return ExitFail
 		}

@@ -127,6 +127,24 @@ func (c Chain) Run() ([]float64, error) {
 		}
 		return r.Float64() < math.Pow(t, float64(delta))
 	}
+	// flipLoop proposes to flip every bond of a closed loop (a plaquette or
+	// a winding line): each site on it has two of its bonds, so no parity
+	// changes; Δ|k| is the number of empty bonds minus occupied ones.
+	flipLoop := func(bonds []int32) {
+		d := 0
+		for _, b := range bonds {
+			if k[b] {
+				d--
+			} else {
+				d++
+			}
+		}
+		if accept(d) {
+			for _, b := range bonds {
+				k[b] = !k[b]
+			}
+		}
+	}
 	sweep := func() {
 		for p := 0; p < nb; p++ {
 			b := int32(r.Intn(nb))
@@ -143,37 +161,11 @@ func (c Chain) Run() ([]float64, error) {
 			}
 		}
 		for p := 0; p < len(lt.Plaq); p++ {
-			pl := lt.Plaq[r.Intn(len(lt.Plaq))]
-			d := 0
-			for _, b := range pl {
-				if k[b] {
-					d--
-				} else {
-					d++
-				}
-			}
-			if accept(d) {
-				for _, b := range pl {
-					k[b] = !k[b] // parities unchanged: each site of a plaquette has two of its bonds
-				}
-			}
+			flipLoop(lt.Plaq[r.Intn(len(lt.Plaq))][:])
 		}
 		if !c.NoWinding {
 			for a := range lt.Lines {
-				line := lt.Lines[a][r.Intn(len(lt.Lines[a]))]
-				d := 0
-				for _, b := range line {
-					if k[b] {
-						d--
-					} else {
-						d++
-					}
-				}
-				if accept(d) {
-					for _, b := range line {
-						k[b] = !k[b]
-					}
-				}
+				flipLoop(lt.Lines[a][r.Intn(len(lt.Lines[a]))])
 			}
 		}
 	}

@@ -185,18 +185,3 @@ func wrap(x float64) float64 {
 	}
 	return y
 }
-
-// Trigamma returns ψ₁(x) = Σ_{m≥0} (x+m)^{−2} for x > 0: the recurrence
-// ψ₁(x) = ψ₁(x+1) + x^{−2} up to x ≥ 20, then the asymptotic series
-// 1/x + 1/(2x²) + 1/(6x³) − 1/(30x⁵) + 1/(42x⁷) − 1/(30x⁹) (M. Abramowitz
-// and I. A. Stegun, Handbook of Mathematical Functions, 6.4.12), accurate to
-// about 1e−16 there.
-func Trigamma(x float64) float64 {
-	s := 0.0
-	for x < 20 {
-		s += 1 / (x * x)
-		x++
-	}
-	x2 := 1 / (x * x)
-	return s + 1/x + x2/2 + x2/x*(1.0/6-x2*(1.0/30-x2*(1.0/42-x2/30)))
-}
