@@ -416,7 +416,7 @@ func Transform(p TransformParams) Task {
 			out := TransformOut{N: s.N, Theta: grid, Sign: nullable(c.Sign), SignErr: nullable(c.SignErr),
 				ImM: nullable(c.ImM), ImMErr: nullable(c.ImMErr),
 				DeltaF: nullable(c.DeltaF), DeltaFErr: nullable(c.DeltaFErr), ExactFirstZero: NullableFloat(math.NaN())}
-			z := transform.FirstZero(c, s.N, s.LnRho, s.Replicas, p.ZeroFraction)
+			z := transform.FirstZero(c, tab, s.LnRho, s.Replicas, p.ZeroFraction)
 			lo, hi := math.NaN(), math.NaN()
 			out.SingleCrossing = z.SingleCrossing
 			out.ZeroBracket = [2]NullableFloat{NullableFloat(math.NaN()), NullableFloat(math.NaN())}

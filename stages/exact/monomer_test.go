@@ -64,3 +64,34 @@ func TestMonomerSignIdentity(t *testing.T) {
 		}
 	}
 }
+
+// The ring's link transfer matrix against the Krawtchouk transform of the
+// exact ring ρ (domain counts in math/big), two independent routes to D(n):
+// R. B. Griffiths, C. A. Hurst, S. Sherman, J. Math. Phys. 11, 790 (1970)
+// (from memory) for the expansion both rest on.
+func TestRingMonomerTransferMatrix(t *testing.T) {
+	for _, c := range []struct {
+		n    int
+		beta float64
+	}{{8, 0.3}, {9, 0.7}, {20, 0.4}, {64, 1.0}} {
+		want, err := MonomerLnD(RingRho(c.n, c.beta), c.n, 1e-14, 1<<13)
+		if err != nil {
+			t.Fatal(err)
+		}
+		got, err := RingMonomerLnD(c.n, c.beta)
+		if err != nil {
+			t.Fatal(err)
+		}
+		if len(got) != len(want) {
+			t.Fatalf("N=%d: %d values, want %d", c.n, len(got), len(want))
+		}
+		for m := range want {
+			if math.Abs(got[m]-want[m]) > 1e-12*math.Max(1, math.Abs(want[m])) {
+				t.Errorf("N=%d β=%v n=%d: ln D = %.15g, Krawtchouk %.15g", c.n, c.beta, 2*m, got[m], want[m])
+			}
+		}
+	}
+	if _, err := RingMonomerLnD(2, 0.3); err == nil {
+		t.Error("a ring of 2 sites was accepted")
+	}
+}

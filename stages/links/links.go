@@ -34,6 +34,8 @@ type Lattice struct {
 	Lines   [][][]int32
 	// Lines[a] lists, for axis a, every line of L bonds along a (a
 	// winding loop); flipping one toggles the winding parity along a.
+	// Nbr[i*2d+2a] and Nbr[i*2d+2a+1] are the +a and −a neighbours of i.
+	Nbr []int32
 }
 
 // NewLattice builds the bonds, plaquettes and winding lines of L^d.
@@ -43,7 +45,7 @@ func NewLattice(d, l int) (*Lattice, error) {
 		return nil, err
 	}
 	n := lat.N
-	out := &Lattice{D: d, L: l, N: n}
+	out := &Lattice{D: d, L: l, N: n, Nbr: lat.Nbr}
 	// bond (i, a): from site i to its +a neighbour
 	bond := func(i, a int) int32 { return int32(i*d + a) }
 	out.Ends = make([][2]int32, n*d)
@@ -81,11 +83,25 @@ func NewLattice(d, l int) (*Lattice, error) {
 	return out, nil
 }
 
-// Chain is a Metropolis chain at fixed n. A sweep is d·N single-bond
-// proposals (a bond with exactly one odd end is flipped, which moves a
-// monomer; other bonds would change n and are skipped), N·d(d−1)/2
-// plaquette proposals and one winding-line proposal per axis (both leave
-// every parity unchanged); each flip is accepted with min(1, t^{Δ|k|}).
+// Chain is a Metropolis chain at fixed n. A sweep is
+//   - d·N single-bond proposals (a bond with exactly one odd end is
+//     flipped, which moves a monomer; other bonds would change n and are
+//     skipped),
+//   - N·d(d−1)/2 plaquette proposals and one winding-line proposal per
+//     axis (closed loops: every parity unchanged),
+//   - N/2 bond-pair proposals (two uniformly random bonds flipped
+//     together, kept only when n is unchanged: this moves a short dimer
+//     — two monomers joined by a link — anywhere at once), and
+//   - ⌈N/4⌉ segment proposals (a random site, axis, direction and
+//     length 1 … min(L−1, 16); the straight path of bonds is flipped,
+//     which toggles only its two end sites, kept when exactly one end was
+//     odd: a monomer jumps along the axis, past others).
+//
+// Every proposal is symmetric and each flip is accepted with
+// min(1, t^{Δ|k|}). The local moves alone make monomers diffuse, and in
+// d = 1 they cannot pass each other: the autocorrelation of B then has a
+// power-law tail that the Γ-method's window cuts (errors ~1.5× too small
+// on 64-rings); the pair and segment moves remove it.
 type Chain struct {
 	Lat           *Lattice
 	Beta          float64
@@ -95,14 +111,25 @@ type Chain struct {
 	// NoWinding drops the winding-line moves (for the test that shows the
 	// chain is then not ergodic at n = 0).
 	NoWinding bool
+	// TwoSector runs the chain on the union of the sectors Monomers−2 and
+	// Monomers (Monomers ≥ 2): bond flips with both ends even (n → n+2)
+	// or both odd (n → n−2) are proposed too and rejected only when they
+	// would leave the pair. Run then returns one column per sweep: the
+	// fraction of bond proposals after which the chain was in the upper
+	// sector, whose mean x̄ gives D(n)/D(n−2) = x̄/(1−x̄).
+	TwoSector bool
 }
 
 // Run returns, per measured sweep, A = Σ_{even-even bonds} t^{1−2k_b} and
-// B = #{odd-odd bonds}, row-major (sweeps × 2).
+// B = #{odd-odd bonds}, row-major (sweeps × 2); with TwoSector, the
+// fraction of time in the upper sector (sweeps × 1).
 func (c Chain) Run() ([]float64, error) {
 	lt := c.Lat
 	if c.Monomers%2 != 0 || c.Monomers < 0 || c.Monomers > lt.N {
 		return nil, fmt.Errorf("links: %d monomers on %d sites (need even, 0 … N)", c.Monomers, lt.N)
+	}
+	if c.TwoSector && c.Monomers < 2 {
+		return nil, fmt.Errorf("links: a two-sector chain needs an upper sector n ≥ 2, got %d", c.Monomers)
 	}
 	t := math.Tanh(c.Beta)
 	if !(t > 0) {
@@ -112,9 +139,14 @@ func (c Chain) Run() ([]float64, error) {
 	nb := len(lt.Ends)
 	k := make([]bool, nb)
 	odd := make([]bool, lt.N)
-	if err := initial(lt, k, odd, c.Monomers); err != nil {
+	start, cur := c.Monomers, c.Monomers // cur: the number of odd sites now
+	if c.TwoSector {
+		start, cur = c.Monomers-2, c.Monomers-2
+	}
+	if err := initial(lt, k, odd, start); err != nil {
 		return nil, err
 	}
+	upper := 0 // bond proposals that ended in the upper sector, this sweep
 	flip := func(b int32) {
 		k[b] = !k[b]
 		e := lt.Ends[b]
@@ -145,12 +177,103 @@ func (c Chain) Run() ([]float64, error) {
 			}
 		}
 	}
+	// flipPath flips the path of bonds in bonds if that keeps the pair of
+	// sectors (fixed n: exactly one end odd), with Metropolis acceptance.
+	flipPath := func(bonds []int32, a, b int32) {
+		dn := 0
+		for _, s := range [2]int32{a, b} {
+			if odd[s] {
+				dn -= 2
+			} else {
+				dn += 2
+			}
+		}
+		dn /= 2
+		if a == b {
+			dn = 0
+		}
+		if dn != 0 && !(c.TwoSector && cur+dn >= c.Monomers-2 && cur+dn <= c.Monomers) {
+			return
+		}
+		d := 0
+		for _, x := range bonds {
+			if k[x] {
+				d--
+			} else {
+				d++
+			}
+		}
+		if accept(d) {
+			for _, x := range bonds {
+				k[x] = !k[x]
+			}
+			if a != b {
+				odd[a], odd[b] = !odd[a], !odd[b]
+			}
+			cur += dn
+		}
+	}
+	// flipPair flips bonds b1 and b2 together if that keeps the pair of
+	// sectors, with Metropolis acceptance.
+	flipPair := func(b1, b2 int32) {
+		ends := [4]int32{lt.Ends[b1][0], lt.Ends[b1][1], lt.Ends[b2][0], lt.Ends[b2][1]}
+		dn := 0
+		for _, x := range ends {
+			times := 0
+			for _, y := range ends {
+				if y == x {
+					times++
+				}
+			}
+			if times%2 == 0 {
+				continue // toggled twice: unchanged
+			}
+			if odd[x] {
+				dn--
+			} else {
+				dn++
+			}
+		}
+		if dn != 0 && !(c.TwoSector && cur+dn >= c.Monomers-2 && cur+dn <= c.Monomers) {
+			return
+		}
+		d := 0
+		for _, x := range [2]int32{b1, b2} {
+			if k[x] {
+				d--
+			} else {
+				d++
+			}
+		}
+		if accept(d) {
+			flip(b1)
+			flip(b2)
+			cur += dn
+		}
+	}
+	z := 2 * lt.D
+	path := make([]int32, 0, lt.L)
+	segments, maxLen := (lt.N+3)/4, min(lt.L-1, 16)
 	sweep := func() {
+		upper = 0
 		for p := 0; p < nb; p++ {
 			b := int32(r.Intn(nb))
 			e := lt.Ends[b]
-			if e[0] == e[1] || odd[e[0]] == odd[e[1]] {
-				continue // both ends even or both odd: would change n
+			dn := 0
+			if e[0] != e[1] && odd[e[0]] == odd[e[1]] {
+				dn = 2 // both even: n+2; both odd: n−2
+				if odd[e[0]] {
+					dn = -2
+				}
+			}
+			switch {
+			case dn == 0 && e[0] != e[1]:
+			case c.TwoSector && cur+dn >= c.Monomers-2 && cur+dn <= c.Monomers:
+			default:
+				if cur == c.Monomers {
+					upper++
+				}
+				continue // would leave the sector (or the pair)
 			}
 			d := 1
 			if k[b] {
@@ -158,6 +281,10 @@ func (c Chain) Run() ([]float64, error) {
 			}
 			if accept(d) {
 				flip(b)
+				cur += dn
+			}
+			if cur == c.Monomers {
+				upper++
 			}
 		}
 		for p := 0; p < len(lt.Plaq); p++ {
@@ -168,9 +295,44 @@ func (c Chain) Run() ([]float64, error) {
 				flipLoop(lt.Lines[a][r.Intn(len(lt.Lines[a]))])
 			}
 		}
+		for p := 0; p < lt.N/2; p++ {
+			b1, b2 := int32(r.Intn(nb)), int32(r.Intn(nb))
+			if b1 == b2 {
+				continue
+			}
+			flipPair(b1, b2)
+		}
+		if lt.L < 2 {
+			return
+		}
+		for p := 0; p < segments; p++ {
+			s := int32(r.Intn(lt.N))
+			dir := r.Intn(z) // axis dir/2, sign dir%2
+			ln := 1 + r.Intn(maxLen)
+			path = path[:0]
+			e := s
+			for q := 0; q < ln; q++ {
+				nx := lt.Nbr[int(e)*z+dir]
+				if dir%2 == 0 {
+					path = append(path, e*int32(lt.D)+int32(dir/2))
+				} else {
+					path = append(path, nx*int32(lt.D)+int32(dir/2))
+				}
+				e = nx
+			}
+			flipPath(path, s, e)
+		}
 	}
 	for s := 0; s < c.Therm; s++ {
 		sweep()
+	}
+	if c.TwoSector {
+		out := make([]float64, 0, c.Sweeps)
+		for s := 0; s < c.Sweeps; s++ {
+			sweep()
+			out = append(out, float64(upper)/float64(nb))
+		}
+		return out, nil
 	}
 	out := make([]float64, 0, 2*c.Sweeps)
 	for s := 0; s < c.Sweeps; s++ {

@@ -69,7 +69,7 @@ func (in *Input) Insertion() (*Result, error) {
 		if err != nil {
 			return nil, err
 		}
-		in.warnTau(r, b)
+		in.warnTau(r, b, ch)
 		r.Blocks = append(r.Blocks, b)
 	}
 	for _, m := range pairs(in.N) {
@@ -218,7 +218,7 @@ func (in *Input) Bennett() (*Result, error) {
 		if err != nil {
 			return nil, err
 		}
-		in.warnTau(r, b)
+		in.warnTau(r, b, ch)
 		idx[m] = len(r.Blocks)
 		r.Blocks = append(r.Blocks, b)
 	}
@@ -245,25 +245,35 @@ func (in *Input) Indicator() (*Result, error) {
 	}
 	r := &Result{}
 	for _, m := range pairs(in.N) {
-		ch, err := in.chunks(m)
+		q, err := in.indicatorPair(r, m)
 		if err != nil {
 			return nil, err
 		}
-		g := meanOf(ch)
-		if !(g > 0 && g < 1) {
-			return nil, fmt.Errorf("sector pair M=%d: the chain stayed in one sector (fraction %v); raise sample.sweeps", m, g)
-		}
-		b, err := in.projectedBlock(m, fmt.Sprintf("ln r(M=%d)", m), math.Log(g/(1-g)), scale(ch, 1/g+1/(1-g)))
-		if err != nil {
-			return nil, err
-		}
-		in.warnTau(r, b)
-		r.Blocks = append(r.Blocks, b)
-		r.Ratios = append(r.Ratios, Ratio{M: m, LnR: b.Values[0], Terms: []Term{{len(r.Blocks) - 1, 0, 1}}})
+		r.Ratios = append(r.Ratios, q)
 	}
 	in.appendOddMiddle(r)
 	r.finish()
 	return r, nil
+}
+
+// indicatorPair analyses the two-sector chain labelled m (its upper
+// sector), appending its block to r.
+func (in *Input) indicatorPair(r *Result, m int) (Ratio, error) {
+	ch, err := in.chunks(m)
+	if err != nil {
+		return Ratio{}, err
+	}
+	g := meanOf(ch)
+	if !(g > 0 && g < 1) {
+		return Ratio{}, fmt.Errorf("sector pair %s: the chain stayed in one sector (fraction %v); raise sample.sweeps", in.label(m), g)
+	}
+	b, err := in.projectedBlock(m, fmt.Sprintf("ln r(%s)", in.label(m)), math.Log(g/(1-g)), scale(ch, 1/g+1/(1-g)))
+	if err != nil {
+		return Ratio{}, err
+	}
+	in.warnTau(r, b, ch)
+	r.Blocks = append(r.Blocks, b)
+	return Ratio{M: m, LnR: b.Values[0], Terms: []Term{{len(r.Blocks) - 1, 0, 1}}}, nil
 }
 
 func meanOf(reps [][]float64) float64 {

@@ -68,6 +68,10 @@ type Input struct {
 	// Load, when set, is used instead of Series: it returns the chunks of
 	// chain M on demand, so that only one sector's series is in memory.
 	Load func(m int) ([][]float64, error)
+	// Monomer: the chains are monomer sectors n of the link
+	// representation (labels n, pairs n = 2, 4, …, ≤ N), not
+	// magnetization sectors M.
+	Monomer bool
 	// MinTauRatio refuses a variable with fewer than MinTauRatio·τ_int
 	// measurements (Wolff's rule of thumb is about 100); WarnTauRatio warns.
 	MinTauRatio, WarnTauRatio float64
@@ -95,6 +99,14 @@ func pairs(n int) []int {
 		out = append(out, m)
 	}
 	return out
+}
+
+// label names sector m in messages: "M=12" or "n=12".
+func (in *Input) label(m int) string {
+	if in.Monomer {
+		return fmt.Sprintf("n=%d", m)
+	}
+	return fmt.Sprintf("M=%d", m)
 }
 
 // column extracts column c of row-major chunks.
@@ -147,7 +159,7 @@ func (in *Input) logBlock(sector int, names []string, series [][][]float64) (Blo
 	for i, s := range series {
 		g := analysis.Gamma(s, analysis.DefaultS)
 		if !(g.Mean > 0) {
-			return b, fmt.Errorf("sector M=%d: %s has mean %v; the chain never sampled the move it measures", sector, names[i], g.Mean)
+			return b, fmt.Errorf("sector %s: %s has mean %v; the chain never sampled the move it measures", in.label(sector), names[i], g.Mean)
 		}
 		b.Values = append(b.Values, math.Log(g.Mean))
 		proj[i] = scale(s, 1/g.Mean)
@@ -181,20 +193,22 @@ func (in *Input) checkTau(sector int, name string, g analysis.Result) error {
 		return nil // zero variance: exact, exempt
 	}
 	if in.MinTauRatio > 0 && float64(g.N) < in.MinTauRatio*g.Tau {
-		return fmt.Errorf("sector M=%d: %s has τ_int = %.3g sweeps but only %d measurements (need ≥ %g τ_int); raise sample.sweeps",
-			sector, name, g.Tau, g.N, in.MinTauRatio)
+		return fmt.Errorf("sector %s: %s has τ_int = %.3g sweeps but only %d measurements (need ≥ %g τ_int); raise sample.sweeps",
+			in.label(sector), name, g.Tau, g.N, in.MinTauRatio)
 	}
 	return nil
 }
 
-func (in *Input) warnTau(r *Result, b Block) {
+// warnTau warns about variables of block b (measured on the chunks ch)
+// with fewer than WarnTauRatio·τ_int measurements.
+func (in *Input) warnTau(r *Result, b Block, ch [][]float64) {
+	n := 0
+	for _, c := range ch {
+		n += len(c) / in.Cols
+	}
 	for i, t := range b.Tau {
-		n := 0
-		for _, ch := range in.Series[b.Sector] {
-			n += len(ch) / in.Cols
-		}
 		if in.WarnTauRatio > 0 && b.Cov[i][i] > 0 && float64(n) < in.WarnTauRatio*t {
-			r.Warnings = append(r.Warnings, fmt.Sprintf("sector M=%d: %s has a large τ_int = %.3g sweeps for %d measurements", b.Sector, b.Names[i], t, n))
+			r.Warnings = append(r.Warnings, fmt.Sprintf("sector %s: %s has a large τ_int = %.3g sweeps for %d measurements", in.label(b.Sector), b.Names[i], t, n))
 		}
 	}
 }
@@ -227,19 +241,28 @@ func (in *Input) chunks(m int) ([][]float64, error) {
 	if in.Load != nil {
 		c, err := in.Load(m)
 		if err == nil && len(c) == 0 {
-			err = fmt.Errorf("sector M=%d: no samples", m)
+			err = fmt.Errorf("sector %s: no samples", in.label(m))
 		}
 		return c, err
 	}
 	c, ok := in.Series[m]
 	if !ok || len(c) == 0 {
-		return nil, fmt.Errorf("sector M=%d: no samples", m)
+		return nil, fmt.Errorf("sector %s: no samples", in.label(m))
 	}
 	return c, nil
 }
 
 // Estimate dispatches on the estimator name.
 func Estimate(estimator string, in *Input) (*Result, error) {
+	if in.Monomer {
+		switch estimator {
+		case Insertion:
+			return in.MonomerInsertion()
+		case Indicator:
+			return in.MonomerIndicator()
+		}
+		return nil, fmt.Errorf("ratio: estimator %q has no monomer form (use %s or %s)", estimator, Insertion, Indicator)
+	}
 	switch estimator {
 	case Insertion:
 		return in.Insertion()

@@ -173,13 +173,33 @@ type Curve struct {
 	ReplicaSign, ReplicaImM [][]float64 // [replica][grid]
 }
 
-// Evaluate transforms the central ln ρ and each replica; errors are the
-// standard deviations over replicas.
-func Evaluate(t *Table, central []float64, replicas [][]float64) *Curve {
-	c := &Curve{Theta: t.Theta}
-	v := t.Eval(central)
+// Sum is one representation's sum over sectors on a θ grid: the Fourier
+// sum over magnetizations (Table) or the dual sum over monomer numbers
+// (DualTable). lnW is that representation's log density: ln ρ(M) or
+// ln D(n) − ln D(0).
+type Sum interface {
+	Sites() int
+	Grid() []float64
+	EvalMany(lnW [][]float64) []Values
+	SignAt(lnW []float64, theta float64) float64
+}
+
+// Sites returns N.
+func (t *Table) Sites() int { return t.N }
+
+// Grid returns the θ grid.
+func (t *Table) Grid() []float64 { return t.Theta }
+
+// SignAt is the package's SignAt for this table's N.
+func (t *Table) SignAt(lnRho []float64, theta float64) float64 { return SignAt(t.N, lnRho, theta) }
+
+// Evaluate transforms the central log density and each replica; errors are
+// the standard deviations over replicas.
+func Evaluate(t Sum, central []float64, replicas [][]float64) *Curve {
+	c := &Curve{Theta: t.Grid()}
+	v := t.EvalMany([][]float64{central})[0]
 	c.Sign, c.ImM = v.Sign, v.ImM
-	g := len(t.Theta)
+	g := len(c.Theta)
 	c.SignErr = make([]float64, g)
 	c.ImMErr = make([]float64, g)
 	c.DeltaF = make([]float64, g)
@@ -188,7 +208,7 @@ func Evaluate(t *Table, central []float64, replicas [][]float64) *Curve {
 		c.ReplicaSign = append(c.ReplicaSign, rv.Sign)
 		c.ReplicaImM = append(c.ReplicaImM, rv.ImM)
 	}
-	n := float64(t.N)
+	n := float64(t.Sites())
 	col := make([]float64, len(replicas))
 	for i := 0; i < g; i++ {
 		c.DeltaF[i] = -math.Log(math.Abs(c.Sign[i])) / n
@@ -226,8 +246,9 @@ type Zero struct {
 // at least minFrac of the replicas change sign exactly once on the grid
 // points in [θ_a, θ_b]; its value is the bisection root of the central
 // reconstruction, its error the 68% half-width of the replicas' roots. A
-// later zero is never reported in place of an unresolved first one.
-func FirstZero(c *Curve, n int, central []float64, replicas [][]float64, minFrac float64) Zero {
+// later zero is never reported in place of an unresolved first one. s is
+// the representation the curve came from.
+func FirstZero(c *Curve, s Sum, central []float64, replicas [][]float64, minFrac float64) Zero {
 	var z Zero
 	first := -1
 	for i := 1; i < len(c.Theta); i++ {
@@ -266,7 +287,7 @@ func FirstZero(c *Curve, n int, central []float64, replicas [][]float64, minFrac
 		}
 		if changes == 1 {
 			single++
-			z.ReplicaRoots = append(z.ReplicaRoots, Root(n, replicas[j], z.Lo, z.Hi))
+			z.ReplicaRoots = append(z.ReplicaRoots, RootOf(s, replicas[j], z.Lo, z.Hi))
 		}
 	}
 	if len(c.ReplicaSign) > 0 {
@@ -276,7 +297,7 @@ func FirstZero(c *Curve, n int, central []float64, replicas [][]float64, minFrac
 		return z
 	}
 	z.Resolved = true
-	z.Value = Root(n, central, z.Lo, z.Hi)
+	z.Value = RootOf(s, central, z.Lo, z.Hi)
 	z.Err = halfWidth68(z.ReplicaRoots)
 	return z
 }
@@ -284,10 +305,19 @@ func FirstZero(c *Curve, n int, central []float64, replicas [][]float64, minFrac
 // Root returns the zero of sign(θ) in [lo, hi] by bisection on the direct
 // sum SignAt; the sign must differ at the two ends.
 func Root(n int, lnRho []float64, lo, hi float64) float64 {
-	flo := SignAt(n, lnRho, lo)
+	return bisect(func(th float64) float64 { return SignAt(n, lnRho, th) }, lo, hi)
+}
+
+// RootOf is Root for any representation.
+func RootOf(s Sum, lnW []float64, lo, hi float64) float64 {
+	return bisect(func(th float64) float64 { return s.SignAt(lnW, th) }, lo, hi)
+}
+
+func bisect(sign func(float64) float64, lo, hi float64) float64 {
+	flo := sign(lo)
 	for it := 0; it < 200 && hi-lo > 1e-15*math.Max(1, hi); it++ {
 		mid := (lo + hi) / 2
-		fm := SignAt(n, lnRho, mid)
+		fm := sign(mid)
 		if (fm > 0) == (flo > 0) {
 			lo, flo = mid, fm
 		} else {

@@ -54,8 +54,9 @@ func TestFirstZeroOfExactDensity(t *testing.T) {
 		}
 		reps = append(reps, r)
 	}
-	c := Evaluate(NewTable(n, th), lr, reps)
-	z := FirstZero(c, n, lr, reps, 0.95)
+	tab := NewTable(n, th)
+	c := Evaluate(tab, lr, reps)
+	z := FirstZero(c, tab, lr, reps, 0.95)
 	want := exact.RingFirstZero(n, beta)
 	if !z.Resolved || math.Abs(z.Value-want) > 1e-9 {
 		t.Fatalf("first zero %+v, exact %v", z, want)
@@ -84,5 +85,50 @@ func BenchmarkTransform(b *testing.B) {
 	b.ResetTimer()
 	for i := 0; i < b.N; i++ {
 		Evaluate(tab, lr, reps)
+	}
+}
+
+// The dual sum from exact D (ring link transfer matrix) equals the
+// magnetization Fourier sum from the exact ring ρ, sign and Im m, to 1e−10
+// where |sign| > 1e−6: both are Z(β, iθ)/Z(β, 0) (e^{iθs} =
+// cos θ (1 + i s tan θ)); Im m checked against the ring's closed form
+// (transfer matrix: R. J. Baxter, Exactly Solved Models, ch. 2).
+func TestDualTableMatchesFourierSum(t *testing.T) {
+	for _, c := range []struct {
+		n    int
+		beta float64
+	}{{12, 0.5}, {33, 0.3}, {64, 0.8}} {
+		lnD, err := exact.RingMonomerLnD(c.n, c.beta)
+		if err != nil {
+			t.Fatal(err)
+		}
+		grid := []float64{0, 0.01, 0.05, 0.1, 0.2, 0.35, 0.5, 0.8, 1.2, math.Pi / 2}
+		dual := NewDualTable(c.n, grid)
+		v := dual.EvalMany([][]float64{lnD})[0]
+		checked := 0
+		for g, th := range grid {
+			sign, imM := exact.RingSign(c.n, c.beta, th)
+			if math.Abs(sign) < 1e-6 {
+				continue
+			}
+			checked++
+			abs := 0.0
+			for j, l := range lnD {
+				abs += math.Exp(l + mulLn(c.n-2*j, math.Log(math.Cos(th))) + mulLn(2*j, math.Log(math.Sin(th))))
+			}
+			tol := 100 * 0x1p-53 * abs
+			if math.Abs(v.Sign[g]-sign) > tol+1e-13*math.Abs(sign) {
+				t.Errorf("N=%d θ=%v: dual sign %.15g, ring %.15g", c.n, th, v.Sign[g], sign)
+			}
+			if math.Abs(v.ImM[g]-imM) > (tol/math.Abs(sign)+1e-12)*float64(c.n)*math.Max(1, math.Abs(imM)) {
+				t.Errorf("N=%d θ=%v: dual Im m %.15g, ring %.15g", c.n, th, v.ImM[g], imM)
+			}
+			if s := dual.SignAt(lnD, th); math.Abs(s-v.Sign[g]) > 1e-13 {
+				t.Errorf("N=%d θ=%v: SignAt %.15g, table %.15g", c.n, th, s, v.Sign[g])
+			}
+		}
+		if checked < 4 {
+			t.Errorf("N=%d: only %d points checked", c.n, checked)
+		}
 	}
 }
