@@ -142,7 +142,7 @@ func (r *Results) replicaCost(b *BranchNodes) (reach, negLog [][]float64, ok boo
 		if s == nil || tr == nil {
 			return nil, nil, false
 		}
-		c := transform.Evaluate(transform.NewTable(s.N, tr.Theta), s.LnRho, s.Replicas)
+		c := transform.Evaluate(stages.SumFor(s.Sectors, s.N, tr.Theta), s.LnRho, s.Replicas)
 		limit := math.Inf(1)
 		if !math.IsNaN(float64(tr.ExactFirstZero)) {
 			limit = float64(tr.ExactFirstZero)

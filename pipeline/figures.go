@@ -38,14 +38,20 @@ func (r *Results) branchFigures(b *BranchNodes, tables map[string]*table) []repo
 	st := r.Plan.Study
 	c := sizeColor(st, b.Branch.L)
 	tag := fmt.Sprintf("L=%d, β=%s", b.Branch.L, stages.F(b.Branch.Beta))
+	// the density's columns and labels by representation
+	lab, ln, xl, yl, rl, rt := "M", "ln_rho", "M (total magnetization)", "ln ρ(M)", "M", "r(M) = ρ(M)/ρ(M−2)"
+	if b.Branch.Monomer() {
+		tag += ", monomer sectors"
+		lab, ln, xl, yl, rl, rt = "n", "ln_D", "n (number of monomers)", "ln D(n)/D(0)", "n", "D(n)/D(n−2)"
+	}
 	var figs []report.Figure
 	if d := tables["density"]; d != nil {
-		main := report.Panel{Title: "density of states, " + tag, XLabel: "M (total magnetization)", YLabel: "ln ρ(M)",
-			Series: []report.Series{{Label: "Monte Carlo", Kind: report.Points, X: d.col("M"), Y: d.col("ln_rho"), Err: d.col("ln_rho_err"), Color: c}}}
+		main := report.Panel{Title: "density of states, " + tag, XLabel: xl, YLabel: yl,
+			Series: []report.Series{{Label: "Monte Carlo", Kind: report.Points, X: d.col(lab), Y: d.col(ln), Err: d.col(ln + "_err"), Color: c}}}
 		f := report.Figure{Name: b.Branch.Dir() + "_density"}
-		if ex := d.col("ln_rho_exact"); ex != nil {
-			main.Series = append(main.Series, report.Series{Label: "exact", Kind: report.Dashed, X: d.col("M"), Y: ex, Color: 6, Exact: true})
-			mc, er := d.col("ln_rho"), d.col("ln_rho_err")
+		if ex := d.col(ln + "_exact"); ex != nil {
+			main.Series = append(main.Series, report.Series{Label: "exact", Kind: report.Dashed, X: d.col(lab), Y: ex, Color: 6, Exact: true})
+			mc, er := d.col(ln), d.col(ln+"_err")
 			pull := make([]float64, len(mc))
 			for i := range mc {
 				pull[i] = math.NaN()
@@ -54,8 +60,12 @@ func (r *Results) branchFigures(b *BranchNodes, tables map[string]*table) []repo
 				}
 			}
 			n := float64(b.N)
-			f.Panels = []report.Panel{main, {XLabel: "M", YLabel: "pull", YMin: -4, YMax: 4, XMin: -n, XMax: n,
-				Series: []report.Series{{Kind: report.Points, X: d.col("M"), Y: pull, Color: c}}}}
+			xmin := -n
+			if b.Branch.Monomer() {
+				xmin = 0
+			}
+			f.Panels = []report.Panel{main, {XLabel: lab, YLabel: "pull", YMin: -4, YMax: 4, XMin: xmin, XMax: n,
+				Series: []report.Series{{Kind: report.Points, X: d.col(lab), Y: pull, Color: c}}}}
 		} else {
 			f.Panels = []report.Panel{main}
 		}
@@ -63,8 +73,8 @@ func (r *Results) branchFigures(b *BranchNodes, tables map[string]*table) []repo
 	}
 	if q := tables["ratios"]; q != nil {
 		figs = append(figs, report.Figure{Name: b.Branch.Dir() + "_ratio_error", Panels: []report.Panel{{
-			Title: "relative error of r(M) = ρ(M)/ρ(M−2), " + tag, XLabel: "M", YLabel: "σ(ln r)", LogY: true,
-			Series: []report.Series{{Label: tag, Kind: report.Points, X: q.col("M"), Y: q.col("ln_ratio_err"), Color: c}}}}})
+			Title: "relative error of " + rt + ", " + tag, XLabel: rl, YLabel: "σ(ln r)", LogY: true,
+			Series: []report.Series{{Label: tag, Kind: report.Points, X: q.col(rl), Y: q.col("ln_ratio_err"), Color: c}}}}})
 	}
 	if t := tables["transform"]; t != nil {
 		tr := r.Transform[b]
@@ -187,7 +197,11 @@ func (r *Results) studyFigures() []report.Figure {
 		if sc.Exponent != nil {
 			y = sc.Exponent.Value
 		}
-		p := report.Panel{Title: fmt.Sprintf("first zero against L^{−y}, β=%s (y = %.3g)", stages.F(sc.Beta), y),
+		rep := ""
+		if sn.Sectors == stages.Monomer {
+			rep = ", monomer sectors"
+		}
+		p := report.Panel{Title: fmt.Sprintf("first zero against L^{−y}, β=%s%s (y = %.3g)", stages.F(sc.Beta), rep, y),
 			XLabel: "L^{−y}", YLabel: "θ_1(L)"}
 		for _, pt := range sc.Points {
 			x := math.Pow(float64(pt.L), -y)
@@ -223,14 +237,15 @@ func (r *Results) studyFigures() []report.Figure {
 					X: []float64{0}, Y: []float64{*sc.ExactThetaC}, Color: 6, Exact: true})
 			}
 		}
-		figs = append(figs, report.Figure{Name: "scaling_beta" + stages.F(sc.Beta), Panels: []report.Panel{p}})
+		figs = append(figs, report.Figure{Name: "scaling_beta" + stages.F(sc.Beta) + sectorsSuffix(sn.Sectors), Panels: []report.Panel{p}})
 	}
 	figs = append(figs, r.ladderFigures()...)
+	figs = append(figs, r.comparisonFigures()...)
 	reach := report.Panel{Title: "average sign and reach of every size", XLabel: thetaLabel, YLabel: "|sign(θ)|", LogY: true}
 	for _, b := range r.Plan.Branches {
 		tr := r.Transform[b]
-		if tr == nil {
-			continue
+		if tr == nil || b.Branch.Monomer() {
+			continue // monomer branches: the comparison figures
 		}
 		c := sizeColor(st, b.Branch.L)
 		label := fmt.Sprintf("L=%d β=%s", b.Branch.L, stages.F(b.Branch.Beta))

@@ -10,7 +10,6 @@ import (
 
 	"strata/cache"
 	"strata/stages"
-	"strata/stages/ratio"
 )
 
 // CacheFormat salts every key; bump it when the record layout or the
@@ -76,13 +75,16 @@ func newNode(t stages.Task, branch, label string, inputs ...*Node) *Node {
 
 // BranchNodes are the nodes of one (L, β).
 type BranchNodes struct {
-	Branch    Branch
-	N         int
-	Samples   []*Node
-	Shards    []stages.Shard
-	Ratios    *Node
-	Stitch    *Node
-	Exact     *Node // nil when no exact reference exists
+	Branch  Branch
+	N       int
+	Samples []*Node
+	Shards  []stages.Shard
+	Ratios  *Node
+	Stitch  *Node
+	Exact   *Node // nil when no exact reference exists
+	// ExactD is the exact monomer density (monomer branches where exact
+	// integer counts or the ring's link transfer matrix give it), else nil.
+	ExactD    *Node
 	Fit       *Node // nil unless [fit] enabled
 	Transform *Node
 	Routes    *Node // nil unless [routes] enabled
@@ -109,11 +111,12 @@ type Plan struct {
 	Nodes    []*Node
 }
 
-// ScalingNode joins the branches of one β.
+// ScalingNode joins the branches of one β and one representation.
 type ScalingNode struct {
-	Beta  float64
-	Sizes []int
-	Node  *Node
+	Beta    float64
+	Sectors string
+	Sizes   []int
+	Node    *Node
 }
 
 // seedOf derives a generator seed from the first 8 bytes of the blake3
@@ -123,13 +126,21 @@ func seedOf(format string, args ...any) uint64 {
 	return binary.LittleEndian.Uint64(k[:8])
 }
 
-// shardSeed derives a shard's generator seed by hashing its identity.
+// shardSeed derives a shard's generator seed by hashing its identity
+// (monomer chains add their representation to it).
 func shardSeed(st *Study, b Branch, m, chunk int) uint64 {
+	if b.Monomer() {
+		return seedOf("shard-seed\n%d\n%d\n%d\n%s\n%s\n%d\n%d\nmonomer\n", st.Sample.Seed, st.Model.Dimension, b.L,
+			stages.F(b.Beta), st.Sample.Estimator, m, chunk)
+	}
 	return seedOf("shard-seed\n%d\n%d\n%d\n%s\n%s\n%d\n%d\n", st.Sample.Seed, st.Model.Dimension, b.L,
 		stages.F(b.Beta), st.Sample.Estimator, m, chunk)
 }
 
 func replicaSeed(st *Study, b Branch) uint64 {
+	if b.Monomer() {
+		return seedOf("replica-seed\n%d\n%d\n%d\n%s\nmonomer\n", st.Sample.Seed, st.Model.Dimension, b.L, stages.F(b.Beta))
+	}
 	return seedOf("replica-seed\n%d\n%d\n%d\n%s\n", st.Sample.Seed, st.Model.Dimension, b.L, stages.F(b.Beta))
 }
 
@@ -140,53 +151,77 @@ func BuildPlan(st *Study) *Plan {
 	tp := stages.TransformParams{ThetaMin: st.Transform.ThetaMin, ThetaMax: st.Transform.ThetaMax,
 		Points: st.Transform.ThetaPoints, ReachFactor: st.Transform.ReachFactor,
 		ZeroFraction: st.Transform.ZeroFraction, MaxBits: st.Exact.MaxBits}
-	byBeta := map[float64][]*BranchNodes{}
+	byBeta := map[scalingKey][]*BranchNodes{}
 	counts := map[int]*Node{} // β-independent exact counts per size
+	type lb struct {
+		l    int
+		beta float64
+	}
+	exacts := map[lb]*Node{} // one exact reference per (L, β), shared by the representations
 	for _, b := range st.Branches() {
 		n := int(math.Round(math.Pow(float64(b.L), float64(d))))
 		bn := &BranchNodes{Branch: b, N: n}
 		dir := b.Dir()
-		for _, m := range ratio.Sectors(st.Sample.Estimator, n) {
+		sectors := ""
+		if b.Monomer() {
+			sectors = stages.Monomer
+		}
+		for _, m := range stages.SectorsOf(b.Sectors, st.Sample.Estimator, n) {
 			for c := 0; c < st.Chunks(); c++ {
-				sp := stages.SampleParams{D: d, L: b.L, Beta: b.Beta, Estimator: st.Sample.Estimator,
+				sp := stages.SampleParams{D: d, L: b.L, Beta: b.Beta, Estimator: st.Sample.Estimator, Sectors: sectors,
 					M: m, Chunk: c, Sweeps: st.Sample.ChunkSweeps, Therm: st.Sample.Thermalization,
 					Seed: shardSeed(st, b, m, c)}
-				node := newNode(stages.Sample(sp), dir, fmt.Sprintf("M=%d chunk=%d", m, c))
+				node := newNode(stages.Sample(sp), dir, fmt.Sprintf("%s chunk=%d", sectorLabel(b, m), c))
 				node.cost = float64(st.Sample.ChunkSweeps+st.Sample.Thermalization) * float64(n)
 				bn.Samples = append(bn.Samples, node)
 				bn.Shards = append(bn.Shards, stages.Shard{M: m, Chunk: c})
 			}
 		}
-		if kind := st.exactKind(b); kind != "" {
-			var ein []*Node
-			switch kind {
-			case stages.ExactCounts:
-				cn := counts[b.L]
-				if cn == nil {
-					cn = newNode(stages.ExactCountsTask(d, b.L), fmt.Sprintf("counts_L%d", b.L), "")
-					counts[b.L] = cn
-					p.Nodes = append(p.Nodes, cn)
-				}
-				ein = append(ein, cn)
-			case stages.ExactDensity:
-				dn := newNode(stages.ExactDensityTask(d, b.L, b.Beta), dir, "")
-				p.Nodes = append(p.Nodes, dn)
-				ein = append(ein, dn)
+		countsNode := func() *Node {
+			cn := counts[b.L]
+			if cn == nil {
+				cn = newNode(stages.ExactCountsTask(d, b.L), fmt.Sprintf("counts_L%d", b.L), "")
+				counts[b.L] = cn
+				p.Nodes = append(p.Nodes, cn)
 			}
-			bn.Exact = newNode(stages.Exact(d, b.L, b.Beta, kind), dir, "", ein...)
+			return cn
+		}
+		if kind := st.exactKind(b); kind != "" {
+			if en := exacts[lb{b.L, b.Beta}]; en != nil {
+				bn.Exact = en
+			} else {
+				var ein []*Node
+				switch kind {
+				case stages.ExactCounts:
+					ein = append(ein, countsNode())
+				case stages.ExactDensity:
+					dn := newNode(stages.ExactDensityTask(d, b.L, b.Beta), dir, "")
+					p.Nodes = append(p.Nodes, dn)
+					ein = append(ein, dn)
+				}
+				bn.Exact = newNode(stages.Exact(d, b.L, b.Beta, kind), Branch{L: b.L, Beta: b.Beta}.Dir(), "", ein...)
+				exacts[lb{b.L, b.Beta}] = bn.Exact
+				p.Nodes = append(p.Nodes, bn.Exact)
+			}
+			if b.Monomer() && stages.MonomerExactAvailable(d, b.L) {
+				var ein []*Node
+				if d > 1 {
+					ein = append(ein, countsNode())
+				}
+				bn.ExactD = newNode(stages.ExactMonomer(d, b.L, b.Beta, st.Exact.MaxBits), dir, "", ein...)
+				p.Nodes = append(p.Nodes, bn.ExactD)
+			}
 		}
 		p.Branches = append(p.Branches, bn)
-		byBeta[b.Beta] = append(byBeta[b.Beta], bn)
+		sk := scalingKey{b.Beta, b.Sectors}
+		byBeta[sk] = append(byBeta[sk], bn)
 		p.Nodes = append(p.Nodes, bn.Samples...)
-		if bn.Exact != nil {
-			p.Nodes = append(p.Nodes, bn.Exact)
-		}
 		p.analyse(bn, tp, "")
 		// the lower rungs of a statistics ladder: the same analysis on the
 		// first chunks of every sector (the same shards, nested)
 		for _, sw := range st.Sample.Sweeps[:len(st.Sample.Sweeps)-1] {
 			k := sw / st.Sample.ChunkSweeps
-			rb := &BranchNodes{Branch: b, N: n, Rung: sw, Exact: bn.Exact}
+			rb := &BranchNodes{Branch: b, N: n, Rung: sw, Exact: bn.Exact, ExactD: bn.ExactD}
 			for i, sh := range bn.Shards {
 				if sh.Chunk < k {
 					rb.Samples = append(rb.Samples, bn.Samples[i])
@@ -207,7 +242,11 @@ func BuildPlan(st *Study) *Plan {
 func (p *Plan) analyse(bn *BranchNodes, tp stages.TransformParams, label string) {
 	st, b, dir := p.Study, bn.Branch, bn.Branch.Dir()
 	d := st.Model.Dimension
-	bn.Ratios = newNode(stages.Ratios(stages.RatiosParams{D: d, L: b.L, Beta: b.Beta,
+	sectors := ""
+	if b.Monomer() {
+		sectors = stages.Monomer
+	}
+	bn.Ratios = newNode(stages.Ratios(stages.RatiosParams{D: d, L: b.L, Beta: b.Beta, Sectors: sectors,
 		Estimator: st.Sample.Estimator, MinTauRatio: st.Ratios.MinTauRatio,
 		WarnTauRatio: st.Ratios.WarnTauRatio, Shards: bn.Shards}), dir, label, bn.Samples...)
 	bn.Stitch = newNode(stages.Stitch(st.Stitch.Replicas, replicaSeed(st, b)), dir, label, bn.Ratios)
@@ -217,13 +256,14 @@ func (p *Plan) analyse(bn *BranchNodes, tp stages.TransformParams, label string)
 	}
 	btp := tp
 	btp.HasExact = bn.Exact != nil
-	if st.Fit.Enabled {
+	btp.Sectors = sectors
+	if st.Fit.Enabled && !b.Monomer() {
 		bn.Fit = newNode(stages.Fit(st.Fit.Target, st.Fit.Degrees), dir, label, bn.Stitch)
 		tin = append(tin, bn.Fit)
 		btp.HasFit = true
 	}
 	bn.Transform = newNode(stages.Transform(btp), dir, label, tin...)
-	if st.Routes.Enabled {
+	if st.Routes.Enabled && !b.Monomer() {
 		rin := []*Node{bn.Stitch, bn.Transform}
 		if bn.Exact != nil {
 			rin = append(rin, bn.Exact)
@@ -265,28 +305,55 @@ func ShardOf(nodes []*Node, k int) map[*Node]int {
 	return out
 }
 
-func (p *Plan) addScaling(st *Study, byBeta map[float64][]*BranchNodes) {
+// scalingKey groups branches for finite-size scaling: one β, one
+// representation.
+type scalingKey struct {
+	beta    float64
+	sectors string
+}
+
+// sectorLabel names a chain in node labels: "M=4" or "n=4".
+func sectorLabel(b Branch, m int) string {
+	if b.Monomer() {
+		return fmt.Sprintf("n=%d", m)
+	}
+	return fmt.Sprintf("M=%d", m)
+}
+
+func (p *Plan) addScaling(st *Study, byBeta map[scalingKey][]*BranchNodes) {
 	exp := math.NaN()
 	if x, ok := st.Scaling.Exponent.(float64); ok {
 		exp = x
 	}
-	var betas []float64
-	for b := range byBeta {
-		betas = append(betas, b)
+	var keys []scalingKey
+	for k := range byBeta {
+		keys = append(keys, k)
 	}
-	sort.Float64s(betas)
-	for _, beta := range betas {
-		bns := byBeta[beta]
-		sn := &ScalingNode{Beta: beta}
+	sort.Slice(keys, func(i, j int) bool {
+		if keys[i].beta != keys[j].beta {
+			return keys[i].beta < keys[j].beta
+		}
+		return keys[i].sectors < keys[j].sectors // magnetization before monomer
+	})
+	for _, k := range keys {
+		beta := k.beta
+		bns := byBeta[k]
+		sn := &ScalingNode{Beta: beta, Sectors: k.sectors}
 		var ins []*Node
 		for _, bn := range bns {
 			sn.Sizes = append(sn.Sizes, bn.Branch.L)
 			ins = append(ins, bn.Transform)
 		}
+		seed := seedOf("scaling-seed\n%d\n%s\n", st.Sample.Seed, stages.F(beta))
+		sectors := ""
+		if k.sectors == stages.Monomer {
+			seed = seedOf("scaling-seed\n%d\n%s\nmonomer\n", st.Sample.Seed, stages.F(beta))
+			sectors = stages.Monomer
+		}
 		sn.Node = newNode(stages.Scaling(stages.ScalingParams{Dimension: st.Model.Dimension, Beta: beta,
 			Sizes: sn.Sizes, Exponent: exp, Correction: st.Scaling.Correction, MinSize: st.Scaling.MinSize,
-			Replicas: st.Stitch.Replicas, Seed: seedOf("scaling-seed\n%d\n%s\n", st.Sample.Seed, stages.F(beta))}),
-			"beta"+stages.F(beta), "", ins...)
+			Replicas: st.Stitch.Replicas, Seed: seed, Sectors: sectors}),
+			"beta"+stages.F(beta)+sectorsSuffix(k.sectors), "", ins...)
 		p.Scaling = append(p.Scaling, sn)
 		p.Nodes = append(p.Nodes, sn.Node)
 	}

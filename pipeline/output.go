@@ -42,8 +42,10 @@ type Manifest struct {
 
 // BranchSummary is one branch in summary.json.
 type BranchSummary struct {
-	Size              int          `json:"size"`
-	Beta              float64      `json:"beta"`
+	Size int     `json:"size"`
+	Beta float64 `json:"beta"`
+	// Sectors is the representation sampled: "magnetization" or "monomer".
+	Sectors           string       `json:"sectors"`
 	Dir               string       `json:"dir"`
 	FirstZero         *ZeroSummary `json:"first_zero"`
 	Reach             *float64     `json:"reach"`
@@ -89,6 +91,9 @@ type Summary struct {
 	Scaling   []stages.ScalingOut `json:"scaling"`
 	// CostFits: statistics ladders only, per β and rung.
 	CostFits []CostFit `json:"cost_fits,omitempty"`
+	// Comparison: studies that sample both representations, one entry
+	// per (L, β).
+	Comparison []Comparison `json:"comparison,omitempty"`
 }
 
 func ptr(x float64) *float64 {
@@ -115,6 +120,7 @@ type Results struct {
 	Ratios    map[*BranchNodes]*stages.RatiosOut
 	Stitch    map[*BranchNodes]*stages.StitchOut
 	Exact     map[*BranchNodes]*stages.ExactOut
+	ExactD    map[*BranchNodes]*stages.MonomerExactOut
 	Transform map[*BranchNodes]*stages.TransformOut
 	Routes    map[*BranchNodes]*stages.RoutesOut
 	Scaling   map[*ScalingNode]*stages.ScalingOut
@@ -153,6 +159,9 @@ func (r *Results) load(c *cache.Cache, b *BranchNodes) {
 	if v, err := load[stages.ExactOut](c, b.Exact); err == nil && v != nil {
 		r.Exact[b] = v
 	}
+	if v, err := load[stages.MonomerExactOut](c, b.ExactD); err == nil && v != nil {
+		r.ExactD[b] = v
+	}
 	if v, err := load[stages.TransformOut](c, b.Transform); err == nil {
 		r.Transform[b] = v
 	}
@@ -172,7 +181,7 @@ func (r *Results) load(c *cache.Cache, b *BranchNodes) {
 // LoadResults reads whatever of the plan's outputs the cache holds.
 func LoadResults(c *cache.Cache, p *Plan) *Results {
 	r := &Results{Plan: p, Ratios: map[*BranchNodes]*stages.RatiosOut{}, Stitch: map[*BranchNodes]*stages.StitchOut{},
-		Exact: map[*BranchNodes]*stages.ExactOut{}, Transform: map[*BranchNodes]*stages.TransformOut{},
+		Exact: map[*BranchNodes]*stages.ExactOut{}, ExactD: map[*BranchNodes]*stages.MonomerExactOut{}, Transform: map[*BranchNodes]*stages.TransformOut{},
 		Routes: map[*BranchNodes]*stages.RoutesOut{}, Scaling: map[*ScalingNode]*stages.ScalingOut{},
 		CPU: map[*BranchNodes]float64{}}
 	for _, b := range p.Branches {
@@ -194,7 +203,7 @@ func (r *Results) BuildSummary() Summary {
 	st := r.Plan.Study
 	s := Summary{Name: st.Name, Dimension: st.Model.Dimension, Branches: []BranchSummary{}, Scaling: []stages.ScalingOut{}}
 	for _, b := range r.Plan.Branches {
-		bs := BranchSummary{Size: b.Branch.L, Beta: b.Branch.Beta, Dir: b.Branch.Dir()}
+		bs := BranchSummary{Size: b.Branch.L, Beta: b.Branch.Beta, Sectors: b.Branch.Sectors, Dir: b.Branch.Dir()}
 		if t := r.Transform[b]; t != nil {
 			if t.FirstZero != nil {
 				bs.FirstZero = &ZeroSummary{Value: t.FirstZero.Value, Error: t.FirstZero.Error, Marginal: t.ZeroMarginal,
@@ -231,8 +240,19 @@ func (r *Results) BuildSummary() Summary {
 	s.CostFits = r.costFits()
 	for _, sn := range r.Plan.Scaling {
 		if v := r.Scaling[sn]; v != nil {
-			s.Scaling = append(s.Scaling, *v)
+			out := *v
+			out.Sectors = sectorsName(sn.Sectors)
+			s.Scaling = append(s.Scaling, out)
 		}
+	}
+	s.Comparison = r.comparisons()
+	return s
+}
+
+// sectorsName maps the internal "" to "magnetization".
+func sectorsName(s string) string {
+	if s == "" {
+		return stages.Magnetization
 	}
 	return s
 }
@@ -317,7 +337,9 @@ func materializeInto(c *cache.Cache, p *Plan, ran []*Node, dir, studyText string
 	}
 	for _, sn := range p.Scaling {
 		if v := res.Scaling[sn]; v != nil {
-			path, err := writeScalingCSV(dir, v)
+			sv := *v
+			sv.Sectors = sn.Sectors
+			path, err := writeScalingCSV(dir, &sv)
 			if err != nil {
 				return nil, man, err
 			}
@@ -403,11 +425,17 @@ func (r *Results) branchTables(b *BranchNodes) map[string]*table {
 			tau = append(tau, x.Tau)
 		}
 		t := &table{name: "ratios.csv"}
-		t.add("M", ms)
+		t.add(labelName(b), ms)
 		t.add("ln_ratio", lr)
 		t.add("ln_ratio_err", le)
 		t.add("tau_int", tau)
-		if ex != nil {
+		if xd := r.ExactD[b]; b.Branch.Monomer() && xd != nil {
+			e := make([]float64, len(ms))
+			for i, m := range ms {
+				e[i] = xd.LnD[int(m)/2] - xd.LnD[int(m)/2-1]
+			}
+			t.add("ln_ratio_exact", e)
+		} else if ex != nil && !b.Branch.Monomer() {
 			e := make([]float64, len(ms))
 			for i, m := range ms {
 				k := (int(m) + n) / 2
@@ -417,7 +445,20 @@ func (r *Results) branchTables(b *BranchNodes) map[string]*table {
 		}
 		out["ratios"] = t
 	}
-	if s := r.Stitch[b]; s != nil {
+	if s := r.Stitch[b]; s != nil && b.Branch.Monomer() {
+		ns := make([]float64, len(s.LnRho))
+		for k := range ns {
+			ns[k] = float64(2 * k)
+		}
+		d := &table{name: "density.csv"}
+		d.add("n", ns)
+		d.add("ln_D", s.LnRho)
+		d.add("ln_D_err", s.LnRhoErr)
+		if xd := r.ExactD[b]; xd != nil {
+			d.add("ln_D_exact", xd.LnD)
+		}
+		out["density"] = d
+	} else if s != nil {
 		all := make([]float64, s.N+1)
 		for k := range all {
 			all[k] = float64(2*k - s.N)
@@ -518,7 +559,11 @@ func writeSamples(c *cache.Cache, b *BranchNodes, st *Study, dir string, record 
 			continue // not sampled yet
 		}
 		sh := b.Shards[i]
-		base := filepath.Join(dir, fmt.Sprintf("M%d_chunk%d", sh.M, sh.Chunk))
+		label := "M"
+		if b.Branch.Monomer() {
+			label = "n"
+		}
+		base := filepath.Join(dir, fmt.Sprintf("%s%d_chunk%d", label, sh.M, sh.Chunk))
 		if err := os.MkdirAll(dir, 0o777); err != nil {
 			return err
 		}
@@ -529,10 +574,16 @@ func writeSamples(c *cache.Cache, b *BranchNodes, st *Study, dir string, record 
 		record(base + ".json")
 		meta := map[string]any{
 			"estimator": st.Sample.Estimator, "beta": b.Branch.Beta, "size": b.Branch.L,
-			"dimension": st.Model.Dimension, "sites": b.N, "magnetization": sh.M, "chunk": sh.Chunk,
+			"dimension": st.Model.Dimension, "sites": b.N, "chunk": sh.Chunk,
 			"sweeps": st.Sample.ChunkSweeps, "thermalization": st.Sample.Thermalization,
 			"study_seed": st.Sample.Seed, "seed": shardSeed(st, b.Branch, sh.M, sh.Chunk),
 			"columns": sampleColumns(st.Sample.Estimator, st.Model.Dimension), "key": n.Key,
+		}
+		if b.Branch.Monomer() {
+			meta["sectors"], meta["monomers"] = stages.Monomer, sh.M
+			meta["columns"] = monomerColumns(st.Sample.Estimator)
+		} else {
+			meta["magnetization"] = sh.M
 		}
 		data, err := json.MarshalIndent(meta, "", "  ")
 		if err != nil {
@@ -597,6 +648,23 @@ func sampleColumns(estimator string, d int) []string {
 	return []string{"fraction of proposals after which the chain was in sector M"}
 }
 
+// monomerColumns describes the columns of a monomer shard.
+func monomerColumns(estimator string) []string {
+	if estimator == "indicator" {
+		return []string{"fraction of bond proposals after which the two-sector chain {n-2, n} was in sector n"}
+	}
+	return []string{"A: sum over bonds with both ends even of t^(1-2k), t = tanh(beta), k = 0/1 the bond's occupation",
+		"B: number of bonds with both ends odd"}
+}
+
+// labelName is the sector column of a branch's tables: M or n.
+func labelName(b *BranchNodes) string {
+	if b.Branch.Monomer() {
+		return "n"
+	}
+	return "M"
+}
+
 func writeScalingCSV(outDir string, v *stages.ScalingOut) (string, error) {
 	var ls, th, er, ex []float64
 	val := func(p *float64) float64 {
@@ -611,7 +679,7 @@ func writeScalingCSV(outDir string, v *stages.ScalingOut) (string, error) {
 		er = append(er, val(p.Theta1Err))
 		ex = append(ex, val(p.Theta1Exact))
 	}
-	path := filepath.Join(outDir, "scaling_beta"+stages.F(v.Beta)+".csv")
+	path := filepath.Join(outDir, "scaling_beta"+stages.F(v.Beta)+sectorsSuffix(v.Sectors)+".csv")
 	_ = os.MkdirAll(outDir, 0o777)
 	return path, writeIfChanged(path, csvTable([]string{"L", "theta1", "theta1_err", "theta1_exact"}, [][]float64{ls, th, er, ex}))
 }

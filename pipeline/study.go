@@ -8,6 +8,7 @@ import (
 	"os"
 	"path/filepath"
 	"regexp"
+	"slices"
 	"sort"
 	"strconv"
 	"strings"
@@ -53,6 +54,10 @@ type SampleSpec struct {
 	Thermalization int    `toml:"thermalization" json:"thermalization"` // sweeps discarded per chunk
 	Seed           int64  `toml:"seed" json:"seed"`
 	Estimator      string `toml:"estimator" json:"estimator"`
+	// Sectors lists the representations sampled for every (L, β):
+	// "magnetization" (sectors of fixed M) and "monomer" (sectors of fixed
+	// n in the link representation).
+	Sectors []string `toml:"sectors" json:"sectors"`
 }
 
 // Sweeps is [sample] sweeps: one number, or a strictly increasing list (a
@@ -187,7 +192,7 @@ func Defaults() Study {
 	return Study{
 		Name: "study",
 		Sample: SampleSpec{Sweeps: Sweeps{4000}, ChunkSweeps: 1000, Thermalization: 100,
-			Seed: 1, Estimator: ratio.Insertion},
+			Seed: 1, Estimator: ratio.Insertion, Sectors: []string{stages.Magnetization}},
 		Ratios:    RatiosSpec{MinTauRatio: 100, WarnTauRatio: 1000},
 		Stitch:    StitchSpec{Replicas: 200},
 		Exact:     ExactSpec{Enabled: true, MaxBits: 1 << 14},
@@ -391,6 +396,7 @@ func (st *Study) validate(p *Problems) {
 	if !okEst {
 		p.add("sample.estimator", "%q is not one of %s", s.Estimator, strings.Join(ratio.Estimators, ", "))
 	}
+	st.validateSectors(p)
 	for _, kv := range []struct {
 		k string
 		v float64
@@ -499,6 +505,40 @@ func (st *Study) validate(p *Problems) {
 	st.validateExpect(p)
 }
 
+// validateSectors checks [sample] sectors.
+func (st *Study) validateSectors(p *Problems) {
+	s := st.Sample
+	if len(s.Sectors) == 0 {
+		p.add("sample.sectors", "list at least one of %s", strings.Join(stages.Representations, ", "))
+	}
+	seen := map[string]bool{}
+	for _, x := range s.Sectors {
+		if x != stages.Magnetization && x != stages.Monomer {
+			p.add("sample.sectors", "%q is not one of %s", x, strings.Join(stages.Representations, ", "))
+		}
+		if seen[x] {
+			p.add("sample.sectors", "%q appears twice", x)
+		}
+		seen[x] = true
+	}
+	if !seen[stages.Monomer] {
+		return
+	}
+	if s.Estimator == ratio.Bennett {
+		p.add("sample.estimator", "bennett has no monomer form: monomer sectors use %s or %s", ratio.Insertion, ratio.Indicator)
+	}
+	for _, l := range st.Model.Sizes {
+		if l < 3 {
+			p.add("model.sizes", "L = %d: monomer sectors need L ≥ 3 (no double bonds)", l)
+		}
+	}
+	for _, b := range st.Model.Betas {
+		if b == 0 {
+			p.add("model.betas", "β = 0: monomer sectors need β > 0 (link weight t = tanh β)")
+		}
+	}
+}
+
 // Hard limits, checked at load by every command (plan included), so that
 // no input can exhaust memory or overflow a count before any work starts.
 const (
@@ -529,7 +569,9 @@ func (st *Study) validateLimits(p *Problems) {
 	for _, l := range st.Model.Sizes {
 		n := int64(sitesOf(st.Model.Dimension, l))
 		maxN = max(maxN, n)
-		shards += int64(len(ratio.Sectors(st.Sample.Estimator, int(n)))) * perSector * int64(len(st.Model.Betas))
+		for _, rep := range st.Sample.Sectors {
+			shards += int64(len(stages.SectorsOf(rep, st.Sample.Estimator, int(n)))) * perSector * int64(len(st.Model.Betas))
+		}
 		if shards > maxShards {
 			break
 		}
@@ -563,29 +605,55 @@ func (st *Study) Canonical() ([]byte, cache.Key) {
 	return b, cache.Sum(b)
 }
 
-// Branch is one (L, β) of a study.
+// Branch is one (L, β, representation) of a study.
 type Branch struct {
 	L    int
 	Beta float64
+	// Sectors is stages.Magnetization or stages.Monomer.
+	Sectors string
 }
 
-// Dir is the branch's output folder name, e.g. L16_beta1.
+// Monomer reports whether the branch samples monomer sectors.
+func (b Branch) Monomer() bool { return b.Sectors == stages.Monomer }
+
+// Suffix is "_monomer" for monomer branches, else "": it tags their
+// folders and per-β files.
+func (b Branch) Suffix() string { return sectorsSuffix(b.Sectors) }
+
+func sectorsSuffix(sectors string) string {
+	if sectors == stages.Monomer {
+		return "_monomer"
+	}
+	return ""
+}
+
+// Dir is the branch's output folder name, e.g. L16_beta1 or
+// L16_beta1_monomer.
 func (b Branch) Dir() string {
-	return fmt.Sprintf("L%d_beta%s", b.L, fmtFloat(b.Beta))
+	return fmt.Sprintf("L%d_beta%s%s", b.L, fmtFloat(b.Beta), b.Suffix())
 }
 
 func fmtFloat(x float64) string { return strconv.FormatFloat(x, 'g', -1, 64) }
 
-// Branches returns the branches ordered by β, then L.
+// Branches returns the branches ordered by β, then L, then
+// representation (magnetization first).
 func (st *Study) Branches() []Branch {
 	var out []Branch
 	betas := append([]float64(nil), st.Model.Betas...)
 	sort.Float64s(betas)
 	sizes := append([]int(nil), st.Model.Sizes...)
 	sort.Ints(sizes)
+	reps := st.Sample.Sectors
+	if len(reps) == 0 {
+		reps = []string{stages.Magnetization}
+	}
 	for _, b := range betas {
 		for _, l := range sizes {
-			out = append(out, Branch{L: l, Beta: b})
+			for _, rep := range stages.Representations {
+				if slices.Contains(reps, rep) {
+					out = append(out, Branch{L: l, Beta: b, Sectors: rep})
+				}
+			}
 		}
 	}
 	return out

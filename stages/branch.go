@@ -22,15 +22,18 @@ type RatiosParams struct {
 	D, L                      int
 	Beta                      float64
 	Estimator                 string
+	Sectors                   string // "" or Magnetization, or Monomer
 	MinTauRatio, WarnTauRatio float64
 	Shards                    []Shard // in the order of the inputs
 }
 
-// RatiosOut is the ratios stage's output.
+// RatiosOut is the ratios stage's output. For monomer sectors the ratio
+// labels are n = 2, 4, …, ≤ N and each ratio is ln[D(n)/D(n−2)].
 type RatiosOut struct {
 	D, N      int
 	Beta      float64
 	Estimator string
+	Sectors   string `json:",omitempty"` // Monomer, or empty for magnetization
 	Result    ratio.Result
 }
 
@@ -39,12 +42,19 @@ type RatiosOut struct {
 // sectors in turn), so its memory grows with one sector's measurement
 // series, not with the branch's.
 func Ratios(p RatiosParams) Task {
+	monomer := p.Sectors == Monomer
+	params := []Param{
+		{"beta", F(p.Beta)}, {"dimension", I(p.D)}, {"estimator", p.Estimator},
+		{"min_tau_ratio", F(p.MinTauRatio)}, {"size", I(p.L)}, {"warn_tau_ratio", F(p.WarnTauRatio)},
+	}
+	sectors := ""
+	if monomer {
+		params = append(params, Param{"sectors", Monomer})
+		sectors = Monomer
+	}
 	return lazyTask(Task{
 		Stage: RatiosStage, Version: ratiosVersion,
-		Params: []Param{
-			{"beta", F(p.Beta)}, {"dimension", I(p.D)}, {"estimator", p.Estimator},
-			{"min_tau_ratio", F(p.MinTauRatio)}, {"size", I(p.L)}, {"warn_tau_ratio", F(p.WarnTauRatio)},
-		},
+		Params: params,
 		Lazy: func(get func(int) ([]byte, error)) ([]byte, error) {
 			lat, err := lattice.New(p.D, p.L)
 			if err != nil {
@@ -54,7 +64,7 @@ func Ratios(p RatiosParams) Task {
 			for i, sh := range p.Shards {
 				bySector[sh.M] = append(bySector[sh.M], i)
 			}
-			in := &ratio.Input{D: p.D, N: lat.N, Beta: p.Beta, Cols: Columns(p.Estimator, p.D),
+			in := &ratio.Input{D: p.D, N: lat.N, Beta: p.Beta, Cols: Columns(p.Estimator, p.D), Monomer: monomer,
 				MinTauRatio: p.MinTauRatio, WarnTauRatio: p.WarnTauRatio}
 			in.Load = func(m int) ([][]float64, error) {
 				var out [][]float64
@@ -68,7 +78,7 @@ func Ratios(p RatiosParams) Task {
 						return nil, err
 					}
 					if cols != in.Cols {
-						return nil, fmt.Errorf("shard M=%d chunk %d has %d columns, want %d", p.Shards[i].M, p.Shards[i].Chunk, cols, in.Cols)
+						return nil, fmt.Errorf("shard %s chunk %d has %d columns, want %d", sectorLabel(sectors, p.Shards[i].M), p.Shards[i].Chunk, cols, in.Cols)
 					}
 					out = append(out, data)
 				}
@@ -78,21 +88,33 @@ func Ratios(p RatiosParams) Task {
 			if err != nil {
 				return nil, err
 			}
-			return encode(RatiosOut{D: p.D, N: lat.N, Beta: p.Beta, Estimator: p.Estimator, Result: *res})
+			return encode(RatiosOut{D: p.D, N: lat.N, Beta: p.Beta, Estimator: p.Estimator, Sectors: sectors, Result: *res})
 		},
 	})
 }
 
-// StitchOut is the stitched density of states with its replicas.
+// StitchOut is the stitched density of states with its replicas. For
+// magnetization sectors LnRho is ln ρ(M) at index (M+N)/2; for monomer
+// sectors (Sectors = Monomer) it is ln D(n) − ln D(0) at index n/2 and the
+// pair labels M are n = 2, 4, ….
 type StitchOut struct {
 	D, N                int
 	Beta                float64
-	M                   []int     // pair labels M of the ratios, N, N−2, …
-	LnRatio, LnRatioErr []float64 // ln ρ(M)/ρ(M−2)
+	Sectors             string    `json:",omitempty"`
+	M                   []int     // pair labels M of the ratios, N, N−2, … (monomer: n = 2, 4, …)
+	LnRatio, LnRatioErr []float64 // ln ρ(M)/ρ(M−2) (monomer: ln D(n)/D(n−2))
 	Tau                 []float64
-	LnRho, LnRhoErr     []float64   // index (M+N)/2
-	Replicas            [][]float64 // ln ρ per replica
+	LnRho, LnRhoErr     []float64   // index (M+N)/2 (monomer: n/2)
+	Replicas            [][]float64 // ln ρ (monomer: ln D) per replica
 	Warnings            []string
+}
+
+// sectorLabel names a chain: "M=4" or "n=4".
+func sectorLabel(sectors string, m int) string {
+	if sectors == Monomer {
+		return fmt.Sprintf("n=%d", m)
+	}
+	return fmt.Sprintf("M=%d", m)
 }
 
 // Stitch returns the task that stitches the ratios into ln ρ(M) and draws
@@ -106,7 +128,11 @@ func Stitch(replicas int, seed uint64) Task {
 			if err := decode(inputs[0], &r); err != nil {
 				return nil, err
 			}
-			out := StitchOut{D: r.D, N: r.N, Beta: r.Beta, Warnings: r.Result.Warnings}
+			out := StitchOut{D: r.D, N: r.N, Beta: r.Beta, Sectors: r.Sectors, Warnings: r.Result.Warnings}
+			stitch := func(lnr []float64) []float64 { return dos.Stitch(r.D, r.N, r.Beta, lnr) }
+			if r.Sectors == Monomer {
+				stitch = dos.StitchMonomer
+			}
 			var lnr []float64
 			for _, q := range r.Result.Ratios {
 				out.M = append(out.M, q.M)
@@ -115,11 +141,11 @@ func Stitch(replicas int, seed uint64) Task {
 				out.Tau = append(out.Tau, q.Tau)
 				lnr = append(lnr, q.LnR)
 			}
-			out.LnRho = dos.Stitch(r.D, r.N, r.Beta, lnr)
+			out.LnRho = stitch(lnr)
 			for _, rep := range dos.Replicas(&r.Result, replicas, seed) {
-				out.Replicas = append(out.Replicas, dos.Stitch(r.D, r.N, r.Beta, rep))
+				out.Replicas = append(out.Replicas, stitch(rep))
 			}
-			out.LnRhoErr = make([]float64, r.N+1)
+			out.LnRhoErr = make([]float64, len(out.LnRho))
 			col := make([]float64, len(out.Replicas))
 			for k := range out.LnRhoErr {
 				for j, rep := range out.Replicas {
@@ -343,6 +369,10 @@ type TransformParams struct {
 	// HasExact and HasFit say which optional inputs follow the stitch
 	// output: the exact reference, then the fit.
 	HasExact, HasFit bool
+	// Sectors: Monomer transforms ln D(n) by the dual sum; the exact
+	// reference is the same physics (sign and zeros do not depend on the
+	// representation).
+	Sectors string
 }
 
 // Grid returns the θ grid θ_i = (θ_min·(n−1−i) + θ_max·i)/(n−1), each
@@ -398,20 +428,30 @@ type TransformOut struct {
 // replica errors, the first zero and the reach. inputs[0] is the stitch
 // output; then the exact reference if p.HasExact, then the fit if p.HasFit.
 func Transform(p TransformParams) Task {
+	params := []Param{
+		{"max_bits", I(p.MaxBits)}, {"reach_factor", F(p.ReachFactor)},
+		{"theta_max", F(p.ThetaMax)}, {"theta_min", F(p.ThetaMin)}, {"theta_points", I(p.Points)},
+		{"zero_fraction", F(p.ZeroFraction)}, {"with_exact", fmt.Sprint(p.HasExact)}, {"with_fit", fmt.Sprint(p.HasFit)},
+	}
+	if p.Sectors == Monomer {
+		params = append(params, Param{"sectors", Monomer})
+	}
 	return Task{
 		Stage: TransformStage, Version: transformVersion,
-		Params: []Param{
-			{"max_bits", I(p.MaxBits)}, {"reach_factor", F(p.ReachFactor)},
-			{"theta_max", F(p.ThetaMax)}, {"theta_min", F(p.ThetaMin)}, {"theta_points", I(p.Points)},
-			{"zero_fraction", F(p.ZeroFraction)}, {"with_exact", fmt.Sprint(p.HasExact)}, {"with_fit", fmt.Sprint(p.HasFit)},
-		},
+		Params: params,
 		Run: func(inputs [][]byte) ([]byte, error) {
 			var s StitchOut
 			if err := decode(inputs[0], &s); err != nil {
 				return nil, err
 			}
+			if s.Sectors != p.Sectors && !(s.Sectors == "" && p.Sectors == Magnetization) {
+				return nil, fmt.Errorf("transform of %q sectors got a stitched density of %q sectors", p.Sectors, s.Sectors)
+			}
+			if s.Sectors == Monomer && p.HasFit {
+				return nil, fmt.Errorf("fits of the monomer density are not supported")
+			}
 			grid := p.Grid()
-			tab := transform.NewTable(s.N, grid)
+			tab := SumFor(s.Sectors, s.N, grid)
 			c := transform.Evaluate(tab, s.LnRho, s.Replicas)
 			out := TransformOut{N: s.N, Theta: grid, Sign: nullable(c.Sign), SignErr: nullable(c.SignErr),
 				ImM: nullable(c.ImM), ImMErr: nullable(c.ImMErr),
@@ -450,7 +490,7 @@ func Transform(p TransformParams) Task {
 				if err := decode(inputs[next], &f); err != nil {
 					return nil, err
 				}
-				out.Fits = fitCurves(&f, tab, c, s.N)
+				out.Fits = fitCurves(&f, tab.(*transform.Table), c, s.N)
 			}
 			return encode(out)
 		},

@@ -21,11 +21,15 @@ type ScalingParams struct {
 	MinSize    int
 	Replicas   int
 	Seed       uint64
+	Sectors    string // Monomer, or "" for magnetization
 }
 
 // ScalingOut is one β's scaling result (summary.json → scaling).
 type ScalingOut struct {
-	Beta           float64        `json:"beta"`
+	Beta float64 `json:"beta"`
+	// Sectors is the representation whose zeros were fitted; filled in
+	// by the pipeline for summary.json.
+	Sectors        string         `json:"sectors"`
 	ThetaC         *ValErr        `json:"theta_c"`
 	Exponent       *ValErr        `json:"exponent"`
 	Amplitude      *ValErr        `json:"amplitude"`
@@ -64,10 +68,14 @@ func Scaling(p ScalingParams) Task {
 	if !math.IsNaN(p.Exponent) {
 		exp = F(p.Exponent)
 	}
+	params := []Param{{"beta", F(p.Beta)}, {"correction", fmt.Sprint(p.Correction)}, {"dimension", I(p.Dimension)},
+		{"exponent", exp}, {"min_size", I(p.MinSize)}, {"replicas", I(p.Replicas)}, {"seed", fmt.Sprint(p.Seed)}}
+	if p.Sectors == Monomer {
+		params = append(params, Param{"sectors", Monomer})
+	}
 	return Task{
 		Stage: ScalingStage, Version: scalingVersion,
-		Params: []Param{{"beta", F(p.Beta)}, {"correction", fmt.Sprint(p.Correction)}, {"dimension", I(p.Dimension)},
-			{"exponent", exp}, {"min_size", I(p.MinSize)}, {"replicas", I(p.Replicas)}, {"seed", fmt.Sprint(p.Seed)}},
+		Params: params,
 		Run: func(inputs [][]byte) ([]byte, error) {
 			out := ScalingOut{Beta: p.Beta, Sizes: []int{}, Points: []ScalingPoint{}}
 			var pts, exactPts []fss.Point

@@ -38,19 +38,24 @@ const (
 	ScalingStage      = "scaling"
 	FitStage          = "fit"
 	RoutesStage       = "routes"
+	// ExactMonomerStage is the exact monomer density D_β(n).
+	ExactMonomerStage = "exact_monomer"
 )
 
 // Code versions: bump when a stage's output for the same inputs changes.
 const (
-	sampleVersion       = 1
-	ratiosVersion       = 1
-	stitchVersion       = 2
-	exactVersion        = 3
-	exactDensityVersion = 1
-	transformVersion    = 6
-	scalingVersion      = 4
-	fitVersion          = 2
-	routesVersion       = 1
+	sampleVersion = 1
+	// monomerSampleVersion versions the link chain (its moves and sweep).
+	monomerSampleVersion = 1
+	ratiosVersion        = 2
+	stitchVersion        = 2
+	exactVersion         = 3
+	exactDensityVersion  = 1
+	transformVersion     = 6
+	scalingVersion       = 4
+	fitVersion           = 2
+	routesVersion        = 1
+	exactMonomerVersion  = 1
 )
 
 // Param is one canonical parameter: a name and its value as text (floats
@@ -90,17 +95,20 @@ func F(x float64) string { return strconv.FormatFloat(x, 'g', -1, 64) }
 // I formats an integer.
 func I(x int) string { return strconv.Itoa(x) }
 
-// SampleParams identify one shard: chunk Chunk of the chain labelled M.
+// SampleParams identify one shard: chunk Chunk of the chain labelled M (a
+// magnetization, or with Sectors = Monomer a number of monomers n).
 type SampleParams struct {
 	D, L          int
 	Beta          float64
 	Estimator     string
+	Sectors       string // "" or Magnetization, or Monomer
 	M, Chunk      int
 	Sweeps, Therm int
 	Seed          uint64 // derived by the pipeline from the study seed and the identity above
 }
 
-// Columns returns the number of columns an estimator records per sweep.
+// Columns returns the number of columns an estimator records per sweep
+// (the same for both representations: bennett has no monomer form).
 func Columns(estimator string, d int) int {
 	switch estimator {
 	case ratio.Insertion:
@@ -114,6 +122,17 @@ func Columns(estimator string, d int) int {
 // Sample returns the task that runs one shard and stores its per-sweep
 // measurement series as a float64 .npy array of shape (sweeps, columns).
 func Sample(p SampleParams) Task {
+	if p.Sectors == Monomer {
+		return Task{
+			Stage: SampleStage, Version: monomerSampleVersion,
+			Params: []Param{
+				{"beta", F(p.Beta)}, {"chunk", I(p.Chunk)}, {"dimension", I(p.D)},
+				{"estimator", p.Estimator}, {"monomers", I(p.M)}, {"sectors", Monomer}, {"seed", strconv.FormatUint(p.Seed, 10)},
+				{"size", I(p.L)}, {"sweeps", I(p.Sweeps)}, {"thermalization", I(p.Therm)},
+			},
+			Run: func([][]byte) ([]byte, error) { return monomerSample(p) },
+		}
+	}
 	return Task{
 		Stage: SampleStage, Version: sampleVersion,
 		Params: []Param{

@@ -31,6 +31,17 @@ func Stitch(d, n int, beta float64, lnr []float64) []float64 {
 	return out
 }
 
+// StitchMonomer returns ln D(n) − ln D(0) for n = 0, 2, …, ≤ N (index n/2)
+// from lnr[j] = ln[D(2j+2)/D(2j)]: the monomer density is anchored at
+// n = 0, the only ratio the dual sum needs being D(n)/D(0).
+func StitchMonomer(lnr []float64) []float64 {
+	out := make([]float64, len(lnr)+1)
+	for j, v := range lnr {
+		out[j+1] = out[j] + v
+	}
+	return out
+}
+
 // Replicas draws R replicas of the ratio vector: each independent chain's
 // variables are drawn jointly from a normal distribution with their
 // covariance, and every ratio follows from its linear terms, so ratios that
