@@ -103,10 +103,10 @@ func checkExpectTargets(st *Study, p *Plan) error {
 			}
 			found := false
 			for _, sn := range p.Scaling {
-				found = found || sn.Beta == *e.Beta
+				found = found || (sn.Beta == *e.Beta && sectorsName(sn.Sectors) == e.sectors())
 			}
 			if !found {
-				return fmt.Errorf("%s: no beta %v in the study", key, *e.Beta)
+				return fmt.Errorf("%s: no beta %v with %s sectors in the study", key, *e.Beta, e.sectors())
 			}
 			continue
 		}
@@ -120,8 +120,21 @@ func checkExpectTargets(st *Study, p *Plan) error {
 				return fmt.Errorf("%s: theta must be a grid point of the study", key)
 			}
 		case "ln_rho":
+			if b.Branch.Monomer() {
+				return fmt.Errorf("%s: branch %s samples monomer sectors: use ln_D with n", key, b.Branch.Dir())
+			}
 			if e.M == nil || *e.M < -b.N || *e.M > b.N || (*e.M+b.N)%2 != 0 {
 				return fmt.Errorf("%s: M must be a magnetization of the %d-site lattice", key, b.N)
+			}
+		case "ln_D":
+			if !b.Branch.Monomer() {
+				return fmt.Errorf("%s: branch %s samples magnetization sectors: use ln_rho with M (or sectors = \"monomer\")", key, b.Branch.Dir())
+			}
+			if e.N == nil || *e.N < 0 || *e.N > b.N || *e.N%2 != 0 {
+				return fmt.Errorf("%s: n must be an even number of monomers in 0…%d", key, b.N)
+			}
+			if e.Exact && b.ExactD == nil {
+				return fmt.Errorf("%s: branch %s has no exact monomer density (exact D needs exact counts: d = 1, 2D L ≤ 8, 3D L ≤ 3)", key, b.Branch.Dir())
 			}
 		}
 		if e.Exact && b.Exact == nil && e.Quantity != "reach" {
@@ -139,7 +152,7 @@ func findBranch(res *Results, e ExpectSpec) (*BranchNodes, error) {
 			}
 			continue
 		}
-		if e.Beta != nil && b.Branch.L == e.Size && b.Branch.Beta == *e.Beta {
+		if e.Beta != nil && b.Branch.L == e.Size && b.Branch.Beta == *e.Beta && b.Branch.Sectors == e.sectors() {
 			return b, nil
 		}
 	}
@@ -149,7 +162,7 @@ func findBranch(res *Results, e ExpectSpec) (*BranchNodes, error) {
 	if e.Beta == nil || e.Size == 0 {
 		return nil, fmt.Errorf("name a branch, or size and beta")
 	}
-	return nil, fmt.Errorf("no branch with size %d and beta %v", e.Size, *e.Beta)
+	return nil, fmt.Errorf("no branch with size %d, beta %v and %s sectors", e.Size, *e.Beta, e.sectors())
 }
 
 func gridIndex(theta []float64, x float64) int {
@@ -169,11 +182,11 @@ func lookup(st *Study, res *Results, e ExpectSpec) (measured, string, error) {
 			return measured{}, "", fmt.Errorf("%s needs beta", e.Quantity)
 		}
 		for _, sn := range res.Plan.Scaling {
-			if sn.Beta != *e.Beta {
+			if sn.Beta != *e.Beta || sectorsName(sn.Sectors) != e.sectors() {
 				continue
 			}
 			sc := res.Scaling[sn]
-			name := fmt.Sprintf("%s beta=%s", e.Quantity, stages.F(sn.Beta))
+			name := fmt.Sprintf("%s beta=%s%s", e.Quantity, stages.F(sn.Beta), sectorsSuffix(sn.Sectors))
 			if sc == nil || sc.ThetaC == nil {
 				return measured{nan, nan, nan}, name, nil
 			}
@@ -249,6 +262,17 @@ func lookup(st *Study, res *Results, e ExpectSpec) (measured, string, error) {
 			m.exact = ex.LnRho[k]
 		}
 		return m, name, nil
+	case "ln_D":
+		if e.N == nil || *e.N < 0 || *e.N%2 != 0 || *e.N/2 >= len(sv.LnRho) || sv.Sectors != stages.Monomer {
+			return measured{}, name, fmt.Errorf("ln_D needs a monomer branch and an even n in 0…N")
+		}
+		k := *e.N / 2
+		name += fmt.Sprintf(" n=%d", *e.N)
+		m := measured{sv.LnRho[k], sv.LnRhoErr[k], nan}
+		if xd := res.ExactD[b]; xd != nil {
+			m.exact = xd.LnD[k]
+		}
+		return m, name, nil
 	}
 	return measured{}, name, fmt.Errorf("unknown quantity %q", e.Quantity)
 }
@@ -269,8 +293,9 @@ func headline(s Summary) map[string][2]float64 {
 	}
 	for _, sc := range s.Scaling {
 		if sc.ThetaC != nil {
-			out["theta_c beta="+stages.F(sc.Beta)] = [2]float64{sc.ThetaC.Value, sc.ThetaC.Error}
-			out["exponent beta="+stages.F(sc.Beta)] = [2]float64{sc.Exponent.Value, sc.Exponent.Error}
+			tag := stages.F(sc.Beta) + sectorsSuffix(sc.Sectors)
+			out["theta_c beta="+tag] = [2]float64{sc.ThetaC.Value, sc.ThetaC.Error}
+			out["exponent beta="+tag] = [2]float64{sc.Exponent.Value, sc.Exponent.Error}
 		}
 	}
 	return out

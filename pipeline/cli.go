@@ -626,21 +626,58 @@ func (e *env) show(p *Plan, c *cache.Cache) int {
 		}
 	}
 	for _, sc := range s.Scaling {
+		tag := stages.F(sc.Beta) + sectorsSuffix(sc.Sectors)
 		if sc.ThetaC == nil {
-			fmt.Fprintf(e.stdout, "scaling beta=%s: %s\n", stages.F(sc.Beta), sc.Note)
+			fmt.Fprintf(e.stdout, "scaling beta=%s: %s\n", tag, sc.Note)
 			continue
 		}
 		fmt.Fprintf(e.stdout, "scaling beta=%s: theta_c = %.6g ± %.2g, y = %.4g ± %.2g, sizes %v",
-			stages.F(sc.Beta), sc.ThetaC.Value, sc.ThetaC.Error, sc.Exponent.Value, sc.Exponent.Error, sc.Sizes)
+			tag, sc.ThetaC.Value, sc.ThetaC.Error, sc.Exponent.Value, sc.Exponent.Error, sc.Sizes)
 		if sc.ExactThetaC != nil {
 			fmt.Fprintf(e.stdout, " (exact theta_c %.6g)", *sc.ExactThetaC)
 		}
 		fmt.Fprintln(e.stdout)
 	}
+	if len(s.Comparison) > 0 {
+		fmt.Fprintln(e.stdout, "\nrepresentations compared (σ·√cpu: the sign's error at the common θ times √(CPU seconds); lower wins):")
+		tw := tabwriter.NewWriter(e.stdout, 2, 4, 2, ' ', 0)
+		fmt.Fprintln(tw, "  L\tbeta\ttheta\tsectors\tfirst zero\treach\tcpu s\tσ_sign\tσ·√cpu")
+		for _, row := range comparisonRows(s.Comparison) {
+			fmt.Fprintln(tw, "  "+strings.Join(row, "\t"))
+		}
+		tw.Flush()
+	}
 	if missing > 0 {
 		fmt.Fprintf(e.stderr, "%d branches have no results yet; run 'strata run' first\n", missing)
 	}
 	return ExitOK
+}
+
+// comparisonRows formats the comparison list, one row per representation:
+// L, β, θ, sectors, first zero, reach, cpu seconds, σ_sign, σ·√cpu.
+func comparisonRows(cs []Comparison) [][]string {
+	opt := func(p *float64, format string) string {
+		if p == nil {
+			return "—"
+		}
+		return fmt.Sprintf(format, *p)
+	}
+	var out [][]string
+	for _, c := range cs {
+		for i, side := range []ComparisonSide{c.Magnetization, c.Monomer} {
+			name := stages.Magnetization
+			if i == 1 {
+				name = stages.Monomer
+			}
+			fz := "—"
+			if side.FirstZero != nil {
+				fz = fmt.Sprintf("%.6g ± %.2g", side.FirstZero.Value, side.FirstZero.Error)
+			}
+			out = append(out, []string{strconv.Itoa(c.Size), stages.F(c.Beta), opt(c.Theta, "%.4g"), name, fz,
+				opt(side.Reach, "%.4g"), opt(side.CPUSeconds, "%.3g"), opt(side.SignErr, "%.3g"), opt(side.SigmaSignSqrtCPU, "%.3g")})
+		}
+	}
+	return out
 }
 
 const cacheUsage = `Usage:

@@ -3,17 +3,22 @@ package pipeline
 import (
 	"fmt"
 	"math"
+
+	"strata/stages"
 )
 
 // Quantities an expectation may name.
 var expectQuantities = map[string]bool{"first_zero": true, "reach": true, "sign": true, "im_m": true,
-	"ln_rho": true, "theta_c": true, "exponent": true}
+	"ln_rho": true, "ln_D": true, "theta_c": true, "exponent": true}
 
 func (st *Study) validateExpect(p *Problems) {
 	for i, e := range st.Expect {
 		key := fmt.Sprintf("expect[%d]", i)
 		if !expectQuantities[e.Quantity] {
-			p.add(key+".quantity", "%q is not one of first_zero, reach, sign, im_m, ln_rho, theta_c, exponent", e.Quantity)
+			p.add(key+".quantity", "%q is not one of first_zero, reach, sign, im_m, ln_rho, ln_D, theta_c, exponent", e.Quantity)
+		}
+		if e.Sectors != "" && e.Sectors != stages.Magnetization && e.Sectors != stages.Monomer {
+			p.add(key+".sectors", "%q is not one of %s, %s", e.Sectors, stages.Magnetization, stages.Monomer)
 		}
 		if (e.Value == nil) == !e.Exact {
 			p.add(key, "give exactly one of value or exact = true")

@@ -485,6 +485,10 @@ func (r *Results) writeReport(outDir string, man Manifest, studyText string) (st
 			p.Routes = append(p.Routes, row)
 		}
 	}
+	for _, row := range comparisonRows(s.Comparison) {
+		p.Comparison = append(p.Comparison, report.ComparisonRow{Size: row[0], Beta: row[1], Theta: row[2], Sectors: row[3],
+			FirstZero: row[4], Reach: row[5], CPU: row[6], SignErr: row[7], SigmaSqrtCPU: row[8]})
+	}
 	for _, n := range man.Nodes {
 		p.Nodes = append(p.Nodes, report.NodeRow{Stage: n.Stage, Branch: n.Branch, Label: n.Label, Key: n.Key.Short(), Status: n.Status})
 	}

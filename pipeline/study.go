@@ -185,6 +185,19 @@ type ExpectSpec struct {
 	Tolerance float64  `toml:"tolerance" json:"tolerance,omitempty"`
 	Theta     *float64 `toml:"theta" json:"theta,omitempty"`
 	M         *int     `toml:"M" json:"M,omitempty"`
+	// Sectors picks the representation of a branch named by size and
+	// beta, and of theta_c and exponent (default "magnetization").
+	Sectors string `toml:"sectors" json:"sectors,omitempty"`
+	// N is the number of monomers of quantity ln_D.
+	N *int `toml:"n" json:"n,omitempty"`
+}
+
+// sectors returns the expectation's representation.
+func (e ExpectSpec) sectors() string {
+	if e.Sectors == "" {
+		return stages.Magnetization
+	}
+	return e.Sectors
 }
 
 // Defaults returns a study with every default filled in.

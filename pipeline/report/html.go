@@ -27,6 +27,12 @@ type RouteRow struct {
 	Dir, Route, FirstZero, Exact, Order, Truncation, BiasOnset string
 }
 
+// ComparisonRow is one representation of one (L, β) in the comparison
+// table.
+type ComparisonRow struct {
+	Size, Beta, Theta, Sectors, FirstZero, Reach, CPU, SignErr, SigmaSqrtCPU string
+}
+
 // NodeRow is one node of the provenance table.
 type NodeRow struct {
 	Stage, Branch, Label, Key, Status string
@@ -39,6 +45,7 @@ type Page struct {
 	Branches                                  []BranchRow
 	Scaling                                   []ScalingRow
 	Routes                                    []RouteRow
+	Comparison                                []ComparisonRow
 	Figures                                   []Rendered
 	Nodes                                     []NodeRow
 }
@@ -71,6 +78,11 @@ sign = Z(β,iθ)/Z(β,0); Im m = Im⟨M⟩/N per site.</p>
 {{if .Routes}}<h2>Routes from ρ(M) to the first zero, on the same samples</h2>
 <table><tr><th>branch</th><th>route</th><th>first zero</th><th>exact θ₁</th><th>order</th><th>truncation</th><th>bias onset (MC, exact)</th></tr>
 {{range .Routes}}<tr><td>{{.Dir}}</td><td>{{.Route}}</td><td>{{.FirstZero}}</td><td>{{.Exact}}</td><td>{{.Order}}</td><td>{{.Truncation}}</td><td>{{.BiasOnset}}</td></tr>
+{{end}}</table>{{end}}
+{{if .Comparison}}<h2>Representations compared: magnetization and monomer sectors</h2>
+<p class="small">σ_sign is the sign's error at the common θ (the smaller of the two reaches); σ·√cpu multiplies it by √(CPU seconds of the samples): the CPU time to reach a given error scales as its square, so the lower value wins.</p>
+<table><tr><th>L</th><th>β</th><th>θ</th><th>sectors</th><th>first zero</th><th>reach</th><th>CPU s</th><th>σ_sign</th><th>σ·√cpu</th></tr>
+{{range .Comparison}}<tr><td>{{.Size}}</td><td>{{.Beta}}</td><td>{{.Theta}}</td><td>{{.Sectors}}</td><td>{{.FirstZero}}</td><td>{{.Reach}}</td><td>{{.CPU}}</td><td>{{.SignErr}}</td><td>{{.SigmaSqrtCPU}}</td></tr>
 {{end}}</table>{{end}}
 <h2>Figures</h2>
 {{range .Figures}}<figure><img alt="{{.Name}}" src="{{datauri .SVG}}"><figcaption class="small">{{.Name}}</figcaption></figure>
