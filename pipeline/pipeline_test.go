@@ -256,7 +256,10 @@ func outputsOf(t *testing.T, out string) map[string][]byte {
 	files := map[string][]byte{}
 	out, _ = filepath.EvalSymlinks(out) // out/<name> links to its current generation
 	filepath.Walk(out, func(p string, info os.FileInfo, err error) error {
-		if err != nil || info.IsDir() || filepath.Base(p) == "manifest.json" || filepath.Base(p) == "report.html" {
+		if err != nil || info.IsDir() || filepath.Base(p) == "manifest.json" || filepath.Base(p) == "report.html" ||
+			strings.Contains(filepath.Base(p), "_comparison.") || filepath.Base(p) == "index.json" {
+			// provenance: timings, CPU seconds (the comparison figures plot
+			// σ·√cpu, and figures/index.json holds every figure's hash)
 			return err
 		}
 		b, err := os.ReadFile(p)
@@ -272,7 +275,7 @@ func outputsOf(t *testing.T, out string) map[string][]byte {
 
 // cpuProvenance matches the CPU seconds in summary.json, which are
 // provenance (they differ between runs) and excluded from bit-identity.
-var cpuProvenance = regexp.MustCompile(`"cpu_seconds": [-+0-9.eE]+`)
+var cpuProvenance = regexp.MustCompile(`"(cpu_seconds|sigma_sign_sqrt_cpu)": [-+0-9.eE]+`)
 
 func sameOutputs(t *testing.T, a, b map[string][]byte) {
 	t.Helper()

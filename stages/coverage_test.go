@@ -15,12 +15,20 @@ import (
 // in-process and returns the stitch and transform outputs.
 func runBranch(t testing.TB, d, l int, beta float64, chunks, sweeps int, seed uint64, grid TransformParams) (*StitchOut, *TransformOut) {
 	t.Helper()
+	return runBranchOf(t, "", d, l, beta, chunks, sweeps, seed, grid)
+}
+
+// runBranchOf is runBranch for either representation (sectors "" or
+// Monomer).
+func runBranchOf(t testing.TB, sectors string, d, l int, beta float64, chunks, sweeps int, seed uint64, grid TransformParams) (*StitchOut, *TransformOut) {
+	t.Helper()
 	lat, _ := lattice.New(d, l)
 	var shards []Shard
 	var inputs [][]byte
-	for _, m := range ratio.Sectors(ratio.Insertion, lat.N) {
+	grid.Sectors = sectors
+	for _, m := range SectorsOf(sectors, ratio.Insertion, lat.N) {
 		for c := 0; c < chunks; c++ {
-			b, err := Sample(SampleParams{D: d, L: l, Beta: beta, Estimator: ratio.Insertion, M: m, Chunk: c,
+			b, err := Sample(SampleParams{D: d, L: l, Beta: beta, Estimator: ratio.Insertion, Sectors: sectors, M: m, Chunk: c,
 				Sweeps: sweeps, Therm: 100, Seed: seed*7919 + uint64(1000*m+c)}).Run(nil)
 			if err != nil {
 				t.Fatal(err)
@@ -29,7 +37,7 @@ func runBranch(t testing.TB, d, l int, beta float64, chunks, sweeps int, seed ui
 			inputs = append(inputs, b)
 		}
 	}
-	rb, err := Ratios(RatiosParams{D: d, L: l, Beta: beta, Estimator: ratio.Insertion, MinTauRatio: 100, Shards: shards}).Run(inputs)
+	rb, err := Ratios(RatiosParams{D: d, L: l, Beta: beta, Estimator: ratio.Insertion, Sectors: sectors, MinTauRatio: 100, Shards: shards}).Run(inputs)
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -123,6 +131,72 @@ func TestCoverage(t *testing.T) {
 		cs.check(t, label+" sign(θ)")
 		cm.check(t, label+" Im m(θ)")
 		cr.check(t, label+" ln ρ(M)")
+	}
+}
+
+// Coverage of the monomer representation's error bars, one pull per
+// independent run (200 runs): the sign and Im m at one θ against the exact
+// ring closed forms (R. J. Baxter, Exactly Solved Models, ch. 2) and the
+// 4×4 high-precision Fourier sum of exact counts, ln D(n) against the
+// ring's link transfer matrix and the Krawtchouk transform of the 4×4
+// counts. Then the monomer first zero of one longer run within 3σ of the
+// exact zero, on a ring and on 4×4.
+func TestMonomerCoverage(t *testing.T) {
+	if testing.Short() {
+		t.Skip("200 independent runs per case")
+	}
+	cases := []struct {
+		d, l   int
+		beta   float64
+		theta  float64
+		n      int // monomers for ln D
+		chunks int
+	}{
+		{1, 10, 0.5, 0.25, 4, 2},
+		{2, 4, 0.3, 0.1, 6, 2},
+	}
+	for _, c := range cases {
+		grid := TransformParams{ThetaMin: 0, ThetaMax: 2 * c.theta, Points: 11, ReachFactor: 2, ZeroFraction: 0.95, MaxBits: 4096}
+		var lnD []float64
+		var sign, imM float64
+		var zero float64
+		switch c.d {
+		case 1:
+			lnD, _ = exact.RingMonomerLnD(c.l, c.beta)
+			sign, imM = exact.RingSign(c.l, c.beta, c.theta)
+			zero = exact.RingFirstZero(c.l, c.beta)
+		case 2:
+			cn, _ := exact.TorusCounts(c.l)
+			var err error
+			if lnD, err = exact.MonomerLnD(cn.Rho(c.beta), cn.N, 1e-14, 4096); err != nil {
+				t.Fatal(err)
+			}
+			sign, imM = exact.HighPrecision(cn.Rho(c.beta), cn.N, c.theta, 1e-12, 4096)
+			zero = 0.18762884087762308 // strata exact --dimension 2 --size 4 --beta 0.3 (exact counts)
+		}
+		var cs, cm, cd coverage
+		for seed := uint64(1); seed <= 200; seed++ {
+			st, tr := runBranchOf(t, Monomer, c.d, c.l, c.beta, c.chunks, 1000, seed, grid)
+			g := 5
+			cs.add(float64(tr.Sign[g]), float64(tr.SignErr[g]), sign)
+			cm.add(float64(tr.ImM[g]), float64(tr.ImMErr[g]), imM)
+			cd.add(st.LnRho[c.n/2], st.LnRhoErr[c.n/2], lnD[c.n/2])
+		}
+		label := fmt.Sprintf("monomer d=%d L=%d β=%v", c.d, c.l, c.beta)
+		cs.check(t, label+" sign(θ)")
+		cm.check(t, label+" Im m(θ)")
+		cd.check(t, label+" ln D(n)")
+		zg := TransformParams{ThetaMin: 0, ThetaMax: 2 * zero, Points: 41, ReachFactor: 2, ZeroFraction: 0.95, MaxBits: 4096}
+		_, tr := runBranchOf(t, Monomer, c.d, c.l, c.beta, 10, 5000, 999, zg)
+		if tr.FirstZero == nil {
+			t.Errorf("%s: no first zero resolved (exact %.6f)", label, zero)
+			continue
+		}
+		p := (tr.FirstZero.Value - zero) / tr.FirstZero.Error
+		t.Logf("%s: first zero %.5f ± %.5f, exact %.5f (pull %.2f)", label, tr.FirstZero.Value, tr.FirstZero.Error, zero, p)
+		if math.Abs(p) > 3 {
+			t.Errorf("%s: first zero %.5f ± %.5f, exact %.5f (pull %.1f)", label, tr.FirstZero.Value, tr.FirstZero.Error, zero, p)
+		}
 	}
 }
 

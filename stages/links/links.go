@@ -21,6 +21,7 @@ package links
 import (
 	"fmt"
 	"math"
+	"slices"
 
 	"strata/stages/lattice"
 	"strata/stages/rng"
@@ -83,6 +84,19 @@ func NewLattice(d, l int) (*Lattice, error) {
 	return out, nil
 }
 
+// segments is the number of segment proposals per sweep.
+func (lt *Lattice) segments() int {
+	if lt.L < 2 {
+		return 0
+	}
+	return (lt.N + 3) / 4
+}
+
+// Proposals returns the number of proposals in one sweep (see Chain).
+func (lt *Lattice) Proposals() int {
+	return len(lt.Ends) + len(lt.Plaq) + len(lt.Lines) + lt.N/2 + lt.segments()
+}
+
 // Chain is a Metropolis chain at fixed n. A sweep is
 //   - d·N single-bond proposals (a bond with exactly one odd end is
 //     flipped, which moves a monomer; other bonds would change n and are
@@ -108,9 +122,9 @@ type Chain struct {
 	Monomers      int // n: even, 0 ≤ n ≤ N
 	Therm, Sweeps int
 	Seed          uint64
-	// NoWinding drops the winding-line moves (for the test that shows the
-	// chain is then not ergodic at n = 0).
-	NoWinding bool
+	// DropWinding lists axes whose winding-line moves are left out (for
+	// the test that shows the chain is then not ergodic at n = 0).
+	DropWinding []int
 	// TwoSector runs the chain on the union of the sectors Monomers−2 and
 	// Monomers (Monomers ≥ 2): bond flips with both ends even (n → n+2)
 	// or both odd (n → n−2) are proposed too and rejected only when they
@@ -253,7 +267,7 @@ func (c Chain) Run() ([]float64, error) {
 	}
 	z := 2 * lt.D
 	path := make([]int32, 0, lt.L)
-	segments, maxLen := (lt.N+3)/4, min(lt.L-1, 16)
+	segments, maxLen := lt.segments(), min(lt.L-1, 16)
 	sweep := func() {
 		upper = 0
 		for p := 0; p < nb; p++ {
@@ -290,8 +304,8 @@ func (c Chain) Run() ([]float64, error) {
 		for p := 0; p < len(lt.Plaq); p++ {
 			flipLoop(lt.Plaq[r.Intn(len(lt.Plaq))][:])
 		}
-		if !c.NoWinding {
-			for a := range lt.Lines {
+		for a := range lt.Lines {
+			if !slices.Contains(c.DropWinding, a) {
 				flipLoop(lt.Lines[a][r.Intn(len(lt.Lines[a]))])
 			}
 		}
@@ -301,9 +315,6 @@ func (c Chain) Run() ([]float64, error) {
 				continue
 			}
 			flipPair(b1, b2)
-		}
-		if lt.L < 2 {
-			return
 		}
 		for p := 0; p < segments; p++ {
 			s := int32(r.Intn(lt.N))

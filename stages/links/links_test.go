@@ -12,13 +12,13 @@ import (
 
 // sectorRatios runs one chain per sector n = 0, 2, …, ≤ N and returns
 // ln[D(n+2)/D(n)] = ln⟨A⟩_n − ln⟨B⟩_{n+2} with its Γ-method error.
-func sectorRatios(t *testing.T, lt *Lattice, beta float64, sweeps int, seed uint64, noWinding bool) (lnr, errs []float64) {
+func sectorRatios(t *testing.T, lt *Lattice, beta float64, sweeps int, seed uint64, dropWinding []int) (lnr, errs []float64) {
 	t.Helper()
 	top := lt.N - lt.N%2
 	A := map[int]analysis.Result{}
 	B := map[int]analysis.Result{}
 	for n := 0; n <= top; n += 2 {
-		data, err := Chain{Lat: lt, Beta: beta, Monomers: n, Therm: 500, Sweeps: sweeps, Seed: seed + uint64(n), NoWinding: noWinding}.Run()
+		data, err := Chain{Lat: lt, Beta: beta, Monomers: n, Therm: 500, Sweeps: sweeps, Seed: seed + uint64(n), DropWinding: dropWinding}.Run()
 		if err != nil {
 			t.Fatal(err)
 		}
@@ -86,7 +86,7 @@ func TestMonomerRatiosAgainstExact(t *testing.T) {
 		if err != nil {
 			t.Fatal(err)
 		}
-		got, errs := sectorRatios(t, lt, c.beta, c.sweeps, 11, false)
+		got, errs := sectorRatios(t, lt, c.beta, c.sweeps, 11, nil)
 		var want []float64
 		if c.rho != nil {
 			want = exactRatios(t, c.rho, lt.N)
@@ -117,14 +117,16 @@ func TestMonomerRatiosAgainstExact(t *testing.T) {
 }
 
 // Without the winding-line moves the chain cannot change the winding
-// parities at n = 0 (plaquettes and monomer moves preserve them; on the ring
-// the n = 0 sector is the empty and the full loop only), so ⟨A⟩₀ and with
-// it D(2)/D(0) come out wrong: the test fails when the moves are removed.
+// parities at n = 0 (plaquettes, monomer, pair and segment moves preserve
+// them there; on the ring the n = 0 sector is the empty and the full loop
+// only), so ⟨A⟩₀ and with it D(2)/D(0) come out wrong: the test fails
+// when the moves are removed, in 2D for either axis alone.
 func TestWindingMovesNeeded(t *testing.T) {
 	for _, c := range []struct {
 		d, l int
 		beta float64
-	}{{1, 8, 1.0}, {2, 3, 0.6}} {
+		drop [][]int
+	}{{1, 8, 1.0, [][]int{{0}}}, {2, 3, 0.6, [][]int{{0}, {1}, {0, 1}}}} {
 		lt, _ := NewLattice(c.d, c.l)
 		var rho exact.RhoFunc
 		if c.d == 1 {
@@ -134,13 +136,17 @@ func TestWindingMovesNeeded(t *testing.T) {
 			rho = cc.Rho(c.beta)
 		}
 		want := exactRatios(t, rho, lt.N)[0]
-		with, e1 := sectorRatios(t, lt, c.beta, 20000, 5, false)
-		without, e2 := sectorRatios(t, lt, c.beta, 20000, 5, true)
+		with, e1 := sectorRatios(t, lt, c.beta, 20000, 5, nil)
 		if p := (with[0] - want) / e1[0]; math.Abs(p) > 4 {
 			t.Errorf("d=%d: with windings, ln D(2)/D(0) pull %.1f", c.d, p)
 		}
-		if p := (without[0] - want) / math.Max(e2[0], 1e-9); math.Abs(p) < 5 {
-			t.Errorf("d=%d: without windings the ratio is still right (pull %.1f): the test cannot see the moves", c.d, p)
+		for _, drop := range c.drop {
+			without, e2 := sectorRatios(t, lt, c.beta, 80000, 5, drop)
+			p := (without[0] - want) / math.Max(e2[0], 1e-9)
+			if math.Abs(p) < 5 {
+				t.Errorf("d=%d: without the windings along %v the ratio is still right (pull %.1f): the test cannot see the moves", c.d, drop, p)
+			}
+			t.Logf("d=%d, no windings along %v: pull %.1f", c.d, drop, p)
 		}
 	}
 }
@@ -205,9 +211,9 @@ func mustLat(t *testing.T, d, l int) *lattice.Lattice {
 	return x
 }
 
-// BenchmarkChain reports ns per attempted move (bond, plaquette and
-// winding proposals of a sweep, measurement included) of the fixed-n link
-// chain in d = 1, 2, 3.
+// BenchmarkChain reports ns per attempted move (bond, plaquette, winding,
+// pair and segment proposals of a sweep, measurement included) of the
+// fixed-n link chain in d = 1, 2, 3.
 func BenchmarkChain(b *testing.B) {
 	for _, c := range []struct{ d, l, n int }{{1, 4096, 64}, {2, 64, 64}, {3, 16, 64}} {
 		b.Run(fmt.Sprintf("d%d_L%d", c.d, c.l), func(b *testing.B) {
@@ -215,7 +221,7 @@ func BenchmarkChain(b *testing.B) {
 			if err != nil {
 				b.Fatal(err)
 			}
-			moves := len(lt.Ends) + len(lt.Plaq) + len(lt.Lines)
+			moves := lt.Proposals()
 			const sweeps = 20
 			b.ResetTimer()
 			for i := 0; i < b.N; i++ {
