@@ -1,7 +1,6 @@
 package pipeline
 
 import (
-	"encoding/json"
 	"math"
 	"os"
 	"path/filepath"
@@ -151,18 +150,4 @@ func TestMonomerStudyRefusals(t *testing.T) {
 			t.Errorf("%q accepted (stderr %q)", edit, e)
 		}
 	}
-}
-
-// summaryJSON decodes summary.json generically (for fields by name).
-func summaryJSON(t *testing.T, out string) map[string]any {
-	t.Helper()
-	b, err := os.ReadFile(filepath.Join(out, "summary.json"))
-	if err != nil {
-		t.Fatal(err)
-	}
-	var m map[string]any
-	if err := json.Unmarshal(b, &m); err != nil {
-		t.Fatal(err)
-	}
-	return m
 }
