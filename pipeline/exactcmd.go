@@ -8,7 +8,6 @@ import (
 	"runtime"
 
 	"strata/cache"
-	"strata/stages/exact"
 
 	"strata/stages"
 )
@@ -79,8 +78,8 @@ func (e *env) exactCommand(args []string) int {
 		switch {
 		case kind == stages.ExactDensity:
 			probs = append(probs, "the monomer density D(n) needs exact integer counts (d = 1; d = 2 with L ≤ 8; d = 3 with L ≤ 3): the Krawtchouk transform amplifies a floating-point ρ's rounding by up to C(N, n)")
-		case kind == stages.ExactRing && *l > maxMonomerRing:
-			probs = append(probs, fmt.Sprintf("the monomer density of rings is computed up to N = %d", maxMonomerRing))
+		case !stages.MonomerExactAvailable(*d, *l):
+			probs = append(probs, fmt.Sprintf("no exact monomer density for %d^%d (rings of 3 … %d sites; d = 2 with L ≤ 8; d = 3 with L ≤ 3)", *l, *d, stages.MaxMonomerRing))
 		}
 	}
 	if len(probs) > 0 {
@@ -110,7 +109,7 @@ func (e *env) exactCommand(args []string) int {
 		in = append(in, dn)
 	}
 	if *sectors == "monomer" {
-		return e.exactMonomer(c, *d, *l, *beta, kind, in, *bits)
+		return e.exactMonomer(c, *d, *l, *beta, in, *bits)
 	}
 	var ex stages.ExactOut
 	if err := e.runDecode(c, newNode(stages.Exact(*d, *l, *beta, kind), "", "", in...), &ex); err != nil {
@@ -193,39 +192,21 @@ func (e *env) runCached(c *cache.Cache, n *Node) ([]byte, error) {
 	return out, nil
 }
 
-// maxMonomerRing bounds the ring's Krawtchouk transform (O(N²) big-float
-// terms at a precision growing with N).
-const maxMonomerRing = 512
-
 // exactMonomer prints n,ln_D_exact: ln[D(n)/D(0)] of the link (monomer)
-// representation from exact integer counts.
-func (e *env) exactMonomer(c *cache.Cache, d, l int, beta float64, kind string, in []*Node, maxBits int) int {
-	var rho exact.RhoFunc
-	n := 1
-	for i := 0; i < d; i++ {
-		n *= l
-	}
-	if kind == stages.ExactRing {
-		rho = exact.RingRho(n, beta)
-	} else {
-		var counts exact.Counts
-		if err := e.runDecode(c, in[0], &counts); err != nil {
-			fmt.Fprintf(e.stderr, "strata exact: %v\n", err)
-			return ExitFail
-		}
-		rho = counts.Rho(beta)
-	}
-	lnD, err := exact.MonomerLnD(rho, n, 1e-14, uint(maxBits))
-	if err != nil {
+// representation, by the ring's link transfer matrix or from exact integer
+// counts by the Krawtchouk transform (the exact_monomer stage, cached).
+func (e *env) exactMonomer(c *cache.Cache, d, l int, beta float64, in []*Node, maxBits int) int {
+	var out stages.MonomerExactOut
+	if err := e.runDecode(c, newNode(stages.ExactMonomer(d, l, beta, maxBits), "", "", in...), &out); err != nil {
 		fmt.Fprintf(e.stderr, "strata exact: %v\n", err)
 		return ExitFail
 	}
-	fmt.Fprintf(e.stdout, "# monomer density of states: d=%d L=%d N=%d beta=%s; ln D(n) − ln D(0), t = tanh β, from exact counts by the Krawtchouk transform\n",
-		d, l, n, stages.F(beta))
-	ns := make([]float64, len(lnD))
+	fmt.Fprintf(e.stdout, "# monomer density of states: d=%d L=%d N=%d beta=%s; ln D(n) − ln D(0), t = tanh β, by the %s\n",
+		d, l, out.N, stages.F(beta), out.Source)
+	ns := make([]float64, len(out.LnD))
 	for i := range ns {
 		ns[i] = float64(2 * i)
 	}
-	fmt.Fprint(e.stdout, string(csvTable([]string{"n", "ln_D_exact"}, [][]float64{ns, lnD})))
+	fmt.Fprint(e.stdout, string(csvTable([]string{"n", "ln_D_exact"}, [][]float64{ns, out.LnD})))
 	return ExitOK
 }
