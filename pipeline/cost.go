@@ -223,23 +223,27 @@ func minLen(x [][]float64) int {
 // −ln|sign(reach_below_zero)| = a + b ln N over the sizes (b with the
 // standard deviation of the same fit over the error replicas).
 type CostFit struct {
-	Beta   float64       `json:"beta"`
+	Beta float64 `json:"beta"`
+	// Sectors is the representation whose sizes were fitted.
+	Sectors string        `json:"sectors"`
 	Sweeps int           `json:"sweeps"`
 	B      stages.ValErr `json:"b"`
 	Sizes  []int         `json:"sizes"`
 }
 
-// branchesByBeta groups the branches by β, in plan order.
-func (p *Plan) branchesByBeta() ([]float64, map[float64][]*BranchNodes) {
-	byBeta := map[float64][]*BranchNodes{}
-	var betas []float64
+// branchesByBeta groups the branches by β and representation, in plan
+// order.
+func (p *Plan) branchesByBeta() ([]scalingKey, map[scalingKey][]*BranchNodes) {
+	byBeta := map[scalingKey][]*BranchNodes{}
+	var keys []scalingKey
 	for _, b := range p.Branches {
-		if byBeta[b.Branch.Beta] == nil {
-			betas = append(betas, b.Branch.Beta)
+		k := scalingKey{b.Branch.Beta, b.Branch.Sectors}
+		if byBeta[k] == nil {
+			keys = append(keys, k)
 		}
-		byBeta[b.Branch.Beta] = append(byBeta[b.Branch.Beta], b)
+		byBeta[k] = append(byBeta[k], b)
 	}
-	return betas, byBeta
+	return keys, byBeta
 }
 
 // costFits fits every (β, rung) of a ladder study over its sizes.
@@ -249,9 +253,9 @@ func (r *Results) costFits() []CostFit {
 		return nil
 	}
 	var out []CostFit
-	betas, byBeta := r.Plan.branchesByBeta()
-	for _, beta := range betas {
-		bs := byBeta[beta]
+	keys, byBeta := r.Plan.branchesByBeta()
+	for _, key := range keys {
+		beta, bs := key.beta, byBeta[key]
 		if len(bs) < 2 {
 			continue
 		}
@@ -273,7 +277,7 @@ func (r *Results) costFits() []CostFit {
 			for i := range bs {
 				y[i] = rows[i][k].negLogSign
 			}
-			fit := CostFit{Beta: beta, Sweeps: sw, Sizes: sizes, B: stages.ValErr{Value: olsSlope(lnN, y)}}
+			fit := CostFit{Beta: beta, Sectors: key.sectors, Sweeps: sw, Sizes: sizes, B: stages.ValErr{Value: olsSlope(lnN, y)}}
 			var bsj []float64
 			n := -1
 			for i := range bs {

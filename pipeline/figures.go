@@ -268,12 +268,16 @@ func (r *Results) ladderFigures() []report.Figure {
 		return nil
 	}
 	var figs []report.Figure
-	betas, byBeta := r.Plan.branchesByBeta()
-	for _, beta := range betas {
-		stat := report.Panel{Title: "reach below the zero against statistics, β=" + stages.F(beta),
+	keys, byBeta := r.Plan.branchesByBeta()
+	for _, key := range keys {
+		beta, tag, suffix := key.beta, stages.F(key.beta), sectorsSuffix(key.sectors)
+		if suffix != "" {
+			tag += ", monomer sectors"
+		}
+		stat := report.Panel{Title: "reach below the zero against statistics, β=" + tag,
 			XLabel: "log_{10}(sweeps per sector)", YLabel: "reach below the zero"}
 		perRung := map[int][2][]float64{}
-		for _, b := range byBeta[beta] {
+		for _, b := range byBeta[key] {
 			rows, ok := r.costRows(b)
 			if !ok {
 				continue
@@ -292,15 +296,15 @@ func (r *Results) ladderFigures() []report.Figure {
 				stat.Series = append(stat.Series, report.Series{Label: fmt.Sprintf("L=%d budget", b.Branch.L), Kind: report.Dashed, X: px, Y: py, Color: c})
 			}
 		}
-		vsN := report.Panel{Title: "reach below the zero against N, β=" + stages.F(beta), XLabel: "N (sites)", YLabel: "reach below the zero"}
+		vsN := report.Panel{Title: "reach below the zero against N, β=" + tag, XLabel: "N (sites)", YLabel: "reach below the zero"}
 		rungs := len(st.Sample.Sweeps)
 		for k := 0; k < rungs; k++ {
 			v := perRung[k]
 			vsN.Series = append(vsN.Series, report.Series{Label: fmt.Sprintf("%d sweeps", st.Sample.Sweeps[k]), Kind: report.Points,
 				X: v[0], Y: v[1], Color: 6, Shade: 0.7 * float64(rungs-1-k) / float64(max(1, rungs-1)), Glyph: k + 1})
 		}
-		figs = append(figs, report.Figure{Name: "cost_statistics_beta" + stages.F(beta), Panels: []report.Panel{stat}},
-			report.Figure{Name: "cost_size_beta" + stages.F(beta), Panels: []report.Panel{vsN}})
+		figs = append(figs, report.Figure{Name: "cost_statistics_beta" + stages.F(beta) + suffix, Panels: []report.Panel{stat}},
+			report.Figure{Name: "cost_size_beta" + stages.F(beta) + suffix, Panels: []report.Panel{vsN}})
 	}
 	return figs
 }
