@@ -4,7 +4,9 @@ import (
 	"fmt"
 	"math"
 	"math/bits"
+	"sort"
 	"testing"
+	"time"
 
 	"strata/stages/analysis"
 	"strata/stages/exact"
@@ -269,6 +271,63 @@ func BenchmarkPairLanes(b *testing.B) {
 				}
 			}
 			b.ReportMetric(float64(b.Elapsed().Nanoseconds())/float64(b.N*sweeps*lat.N*Lanes), "ns/lane-update")
+		})
+	}
+}
+
+// BenchmarkLaneEfficiency compares, per sector of 2D 16² (β = 0.3 above
+// T_c and 0.6 below), the efficiency 1/(σ²_rel·t) of the insertion
+// measurement A = Σ_{up} e^{−2βh} of the 64-lane chain (block means of 16
+// sweeps) with the scalar chain's (per sweep), t the CPU time of each run,
+// σ from the Γ-method. It reports the smallest and the median ratio over
+// the sectors (lanes/scalar) and logs each sector's with -v: a ratio
+// below 1 would mark a sector where the scalar chain wins.
+func BenchmarkLaneEfficiency(b *testing.B) {
+	lat := mustLat(b, 2, 16)
+	n, d, w := lat.N, 2, HistWidth(2)
+	for _, beta := range []float64{0.3, 0.6} {
+		b.Run(fmt.Sprintf("beta%v", beta), func(b *testing.B) {
+			aOf := func(hist []float64) float64 {
+				a := 0.0
+				for k := 0; k < w; k++ {
+					a += hist[k] * math.Exp(-2*beta*float64(2*k-2*d))
+				}
+				return a
+			}
+			relVar := func(x []float64) float64 {
+				g := analysis.Gamma([][]float64{x}, analysis.DefaultS)
+				return g.Err * g.Err / (g.Mean * g.Mean)
+			}
+			for it := 0; it < b.N; it++ {
+				var ratios []float64
+				for _, m := range []int{252, 246, 230, 200, 160, 100, 0} {
+					const scalarSweeps, laneSweeps = 20000, 2048
+					t0 := time.Now()
+					h, _ := Sector(Chain{Lat: lat, Beta: beta, M: m, Therm: 100, Sweeps: scalarSweeps, Seed: uint64(it + 1)})
+					ts := time.Since(t0).Seconds()
+					a := make([]float64, scalarSweeps)
+					for s := range a {
+						a[s] = aOf(h[s*2*w : (s+1)*2*w])
+					}
+					t0 = time.Now()
+					raw, _ := SectorLanes(Chain{Lat: lat, Beta: beta, M: m, Therm: 100, Sweeps: laneSweeps, Seed: uint64(it + 1)}, 16)
+					tl := time.Since(t0).Seconds()
+					al := make([]float64, laneSweeps/16)
+					x := make([]float64, 2*w)
+					for blk := range al {
+						for k := range x {
+							x[k] = float64(raw[blk*2*w+k]) / (Lanes * 16)
+						}
+						al[blk] = aOf(x)
+					}
+					r := (relVar(a) * ts) / (relVar(al) * tl)
+					b.Logf("β=%v M=%d (minority fraction %.3f): efficiency lanes/scalar %.2f", beta, m, float64((n-m)/2)/float64(n), r)
+					ratios = append(ratios, r)
+				}
+				sort.Float64s(ratios)
+				b.ReportMetric(ratios[0], "min-lanes/scalar")
+				b.ReportMetric(ratios[len(ratios)/2], "median-lanes/scalar")
+			}
 		})
 	}
 }
