@@ -11,6 +11,7 @@ import (
 
 	"strata/cache"
 	"strata/stages"
+	"strata/stages/ratio"
 	"strata/stages/exact"
 )
 
@@ -50,8 +51,12 @@ func EstimatePlan(p *Plan, c *cache.Cache, jobs int) Estimate {
 	g := int64(st.Transform.ThetaPoints)
 	for _, b := range p.Branches {
 		n := int64(b.N)
-		cols := int64(stages.Columns(st.Sample.Estimator, st.Model.Dimension))
-		shardBytes := int64(st.Sample.ChunkSweeps)*cols*8 + 256
+		// magnetization: uint32 block counts; monomer: float64 per sweep
+		shardBytes := int64(st.Sample.ChunkSweeps/max(st.Sample.BlockSweeps, 1))*
+			int64(ratio.RawColumns(ratio.ChainOf(st.Sample.Estimator), st.Model.Dimension))*4 + 256
+		if b.Branch.Monomer() {
+			shardBytes = int64(st.Sample.ChunkSweeps)*int64(stages.Columns(st.Sample.Estimator, st.Model.Dimension))*8 + 256
+		}
 		for _, s := range b.Samples {
 			if c == nil || !c.Listed(s.Key) {
 				e.DiskBytes += shardBytes + 128
@@ -60,7 +65,9 @@ func EstimatePlan(p *Plan, c *cache.Cache, jobs int) Estimate {
 		}
 		stale := func(x *Node) bool { return x != nil && (c == nil || !c.Listed(x.Key)) }
 		if stale(b.Ratios) {
-			note(b.Ratios, 3*int64(st.Chunks())*shardBytes, true)
+			// decoded and cooked rows of one sector: float64, ≤ 2W columns
+			cooked := int64(st.Chunks()) * int64(st.Sample.ChunkSweeps) * 8 * int64(stages.Columns(st.Sample.Estimator, st.Model.Dimension))
+			note(b.Ratios, 3*cooked, true)
 		}
 		if stale(b.Stitch) {
 			e.DiskBytes += r * (n + 1) * 24

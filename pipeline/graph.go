@@ -10,6 +10,7 @@ import (
 
 	"strata/cache"
 	"strata/stages"
+	"strata/stages/ratio"
 )
 
 // CacheFormat salts every key; bump it when the record layout or the
@@ -133,9 +134,12 @@ func shardSeed(st *Study, b Branch, m, chunk int) uint64 {
 		return seedOf("shard-seed\n%d\n%d\n%d\n%s\n%s\n%d\n%d\nmonomer\n", st.Sample.Seed, st.Model.Dimension, b.L,
 			stages.F(b.Beta), st.Sample.Estimator, m, chunk)
 	}
-	return seedOf("shard-seed\n%d\n%d\n%d\n%s\n%s\n%d\n%d\n", st.Sample.Seed, st.Model.Dimension, b.L,
-		stages.F(b.Beta), st.Sample.Estimator, m, chunk)
+	// magnetization: by the chain, so that estimators reading the same
+	// chain (insertion, bennett) share shards
+	return seedOf("shard-seed-lanes\n%d\n%d\n%d\n%s\n%s\n%d\n%d\n", st.Sample.Seed, st.Model.Dimension, b.L,
+		stages.F(b.Beta), ratio.ChainOf(st.Sample.Estimator), m, chunk)
 }
+
 
 func replicaSeed(st *Study, b Branch) uint64 {
 	if b.Monomer() {
@@ -170,7 +174,7 @@ func BuildPlan(st *Study) *Plan {
 			for c := 0; c < st.Chunks(); c++ {
 				sp := stages.SampleParams{D: d, L: b.L, Beta: b.Beta, Estimator: st.Sample.Estimator, Sectors: sectors,
 					M: m, Chunk: c, Sweeps: st.Sample.ChunkSweeps, Therm: st.Sample.Thermalization,
-					Seed: shardSeed(st, b, m, c)}
+					Block: st.Sample.BlockSweeps, Seed: shardSeed(st, b, m, c)}
 				node := newNode(stages.Sample(sp), dir, fmt.Sprintf("%s chunk=%d", sectorLabel(b, m), c))
 				node.cost = float64(st.Sample.ChunkSweeps+st.Sample.Thermalization) * float64(n)
 				bn.Samples = append(bn.Samples, node)
@@ -246,7 +250,7 @@ func (p *Plan) analyse(bn *BranchNodes, tp stages.TransformParams, label string)
 	if b.Monomer() {
 		sectors = stages.Monomer
 	}
-	bn.Ratios = newNode(stages.Ratios(stages.RatiosParams{D: d, L: b.L, Beta: b.Beta, Sectors: sectors,
+	bn.Ratios = newNode(stages.Ratios(stages.RatiosParams{D: d, L: b.L, Beta: b.Beta, Sectors: sectors, Block: st.Sample.BlockSweeps,
 		Estimator: st.Sample.Estimator, MinTauRatio: st.Ratios.MinTauRatio,
 		WarnTauRatio: st.Ratios.WarnTauRatio, Shards: bn.Shards}), dir, label, bn.Samples...)
 	bn.Stitch = newNode(stages.Stitch(st.Stitch.Replicas, replicaSeed(st, b)), dir, label, bn.Ratios)

@@ -12,6 +12,8 @@ import (
 
 	"strata/cache"
 	"strata/stages"
+	"strata/stages/ratio"
+	"strata/stages/sampler"
 )
 
 // ToolVersion is written into manifests.
@@ -31,7 +33,9 @@ type ManifestNode struct {
 
 // Manifest is manifest.json: provenance of a run.
 type Manifest struct {
-	Tool      string         `json:"tool"`
+	Tool string `json:"tool"`
+	// Contract is the output layout's version (OutputContract).
+	Contract  int            `json:"contract"`
 	Version   string         `json:"version"`
 	StudyHash cache.Key      `json:"study_hash"`
 	Nodes     []ManifestNode `json:"nodes"`
@@ -316,7 +320,7 @@ func Materialize(c *cache.Cache, p *Plan, ran []*Node, outDir, studyText string)
 // whose Files list what was written.
 func materializeInto(c *cache.Cache, p *Plan, ran []*Node, dir, studyText string) (*Results, Manifest, error) {
 	_, hash := p.Study.Canonical()
-	man := Manifest{Tool: "strata", Version: ToolVersion, StudyHash: hash, Nodes: []ManifestNode{}}
+	man := Manifest{Tool: "strata", Contract: OutputContract, Version: ToolVersion, StudyHash: hash, Nodes: []ManifestNode{}}
 	for _, n := range ran {
 		mn := ManifestNode{Stage: n.Task.Stage, Branch: n.Branch, Label: n.Label, Key: n.Key,
 			Status: n.Status, Seconds: n.Seconds, Inputs: []cache.Key{}, Record: n.Record}
@@ -582,9 +586,18 @@ func writeSamples(c *cache.Cache, b *BranchNodes, st *Study, dir string, record 
 		if b.Branch.Monomer() {
 			meta["sectors"], meta["monomers"] = stages.Monomer, sh.M
 			meta["columns"] = monomerColumns(st.Sample.Estimator)
+			meta["dtype"], meta["rows"] = "float64", "one per sweep"
 		} else {
-			meta["magnetization"] = sh.M
+			chain := ratio.ChainOf(st.Sample.Estimator)
+			meta["magnetization"], meta["chain"] = sh.M, chain
+			meta["lanes"], meta["block_sweeps"] = sampler.Lanes, st.Sample.BlockSweeps
+			meta["dtype"] = "uint32"
+			meta["rows"] = fmt.Sprintf("one per block of %d sweeps, counts summed over the block's sweeps and the %d lanes", st.Sample.BlockSweeps, sampler.Lanes)
+			meta["columns"] = sampleColumns(chain, st.Model.Dimension)
+			delete(meta, "estimator")
+			meta["estimators"] = chainEstimators(chain)
 		}
+		meta["contract"] = OutputContract
 		data, err := json.MarshalIndent(meta, "", "  ")
 		if err != nil {
 			return err
@@ -632,21 +645,32 @@ func writeIfChanged(path string, data []byte) error {
 	return writeFileAtomic(path, data)
 }
 
-func sampleColumns(estimator string, d int) []string {
-	switch estimator {
-	case "insertion":
-		return []string{"A: sum_{up} exp(-2 beta h_i) / ((N-M+2)/2)", "B: sum_{down} exp(+2 beta h_i) / ((N+M+2)/2)"}
-	case "bennett":
-		var out []string
-		for _, s := range []string{"up", "down"} {
-			for h := -2 * d; h <= 2*d; h += 2 {
-				out = append(out, fmt.Sprintf("count of %s spins with local field %d", s, h))
-			}
-		}
-		return out
+// sampleColumns describes the columns of a compact magnetization shard.
+func sampleColumns(chain string, d int) []string {
+	if chain == ratio.ChainPair {
+		return []string{"lane-proposals after which the lane was in sector M (two-sector chain {M, M-2})",
+			"all lane-proposals (N per sweep and lane)"}
 	}
-	return []string{"fraction of proposals after which the chain was in sector M"}
+	var out []string
+	for _, s := range []string{"up", "down"} {
+		for h := -2 * d; h <= 2*d; h += 2 {
+			out = append(out, fmt.Sprintf("(site, lane, sweep) triples with spin %s (sign %s1) and local field h = %d", s, map[string]string{"up": "+", "down": "-"}[s], h))
+		}
+	}
+	return out
 }
+
+// chainEstimators lists the estimators that read a chain's shards.
+func chainEstimators(chain string) []string {
+	if chain == ratio.ChainPair {
+		return []string{ratio.Indicator}
+	}
+	return []string{ratio.Insertion, ratio.Bennett}
+}
+
+// OutputContract versions the layout of the output folder (README,
+// "Outputs"): 2 since the compact uint32 samples.
+const OutputContract = 2
 
 // monomerColumns describes the columns of a monomer shard.
 func monomerColumns(estimator string) []string {

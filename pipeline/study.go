@@ -58,6 +58,20 @@ type SampleSpec struct {
 	// "magnetization" (sectors of fixed M) and "monomer" (sectors of fixed
 	// n in the link representation).
 	Sectors []string `toml:"sectors" json:"sectors"`
+	// BlockSweeps is the sweeps summed into one stored row of a
+	// magnetization shard (default: the largest divisor of chunk_sweeps
+	// not above 16).
+	BlockSweeps int `toml:"block_sweeps" json:"block_sweeps"`
+}
+
+// defaultBlock returns the largest divisor of chunk not above 16.
+func defaultBlock(chunk int) int {
+	for b := 16; b > 1; b-- {
+		if chunk%b == 0 {
+			return b
+		}
+	}
+	return 1
 }
 
 // Sweeps is [sample] sweeps: one number, or a strictly increasing list (a
@@ -204,7 +218,7 @@ func (e ExpectSpec) sectors() string {
 func Defaults() Study {
 	return Study{
 		Name: "study",
-		Sample: SampleSpec{Sweeps: Sweeps{4000}, ChunkSweeps: 1000, Thermalization: 100,
+		Sample: SampleSpec{Sweeps: Sweeps{4096}, ChunkSweeps: 1024, Thermalization: 100,
 			Seed: 1, Estimator: ratio.Insertion, Sectors: []string{stages.Magnetization}},
 		Ratios:    RatiosSpec{MinTauRatio: 100, WarnTauRatio: 1000},
 		Stitch:    StitchSpec{Replicas: 200},
@@ -398,6 +412,20 @@ func (st *Study) validate(p *Problems) {
 
 	if s.ChunkSweeps < 100 {
 		p.add("sample.chunk_sweeps", "%d must be ≥ 100", s.ChunkSweeps)
+	}
+	if s.BlockSweeps == 0 && s.ChunkSweeps > 0 {
+		st.Sample.BlockSweeps = defaultBlock(s.ChunkSweeps)
+	} else if s.BlockSweeps < 1 || s.ChunkSweeps%s.BlockSweeps != 0 {
+		p.add("sample.block_sweeps", "%d must be ≥ 1 and divide chunk_sweeps = %d", s.BlockSweeps, s.ChunkSweeps)
+	}
+	for _, l := range st.Model.Sizes {
+		if m.Dimension < 1 || m.Dimension > 3 || l < 2 || l > 1<<12 {
+			continue // reported above
+		}
+		if n := uint64(sitesOf(m.Dimension, l)); n*64*uint64(max(st.Sample.BlockSweeps, 1)) >= 1<<32 {
+			p.add("sample.block_sweeps", "L = %d: %d sites × 64 lanes × %d sweeps per block overflow the 32-bit counts; lower block_sweeps",
+				l, n, st.Sample.BlockSweeps)
+		}
 	}
 	if s.Thermalization < 0 {
 		p.add("sample.thermalization", "%d must be ≥ 0", s.Thermalization)

@@ -23,6 +23,7 @@ type RatiosParams struct {
 	Beta                      float64
 	Estimator                 string
 	Sectors                   string // "" or Magnetization, or Monomer
+	Block                     int    // sweeps per stored row of magnetization shards
 	MinTauRatio, WarnTauRatio float64
 	Shards                    []Shard // in the order of the inputs
 }
@@ -51,6 +52,8 @@ func Ratios(p RatiosParams) Task {
 	if monomer {
 		params = append(params, Param{"sectors", Monomer})
 		sectors = Monomer
+	} else {
+		params = append(params, Param{"block_sweeps", I(p.Block)})
 	}
 	return lazyTask(Task{
 		Stage: RatiosStage, Version: ratiosVersion,
@@ -66,6 +69,9 @@ func Ratios(p RatiosParams) Task {
 			}
 			in := &ratio.Input{D: p.D, N: lat.N, Beta: p.Beta, Cols: Columns(p.Estimator, p.D), Monomer: monomer,
 				MinTauRatio: p.MinTauRatio, WarnTauRatio: p.WarnTauRatio}
+			if !monomer {
+				in.SweepsPerRow = p.Block
+			}
 			in.Load = func(m int) ([][]float64, error) {
 				var out [][]float64
 				for _, i := range bySector[m] {
@@ -73,12 +79,26 @@ func Ratios(p RatiosParams) Task {
 					if err != nil {
 						return nil, err
 					}
-					data, _, cols, err := DecodeNpy(b)
-					if err != nil {
-						return nil, err
+					sh := p.Shards[i]
+					var data []float64
+					if monomer {
+						var cols int
+						if data, _, cols, err = DecodeNpy(b); err == nil && cols != in.Cols {
+							err = fmt.Errorf("%d columns, want %d", cols, in.Cols)
+						}
+					} else {
+						var raw []uint32
+						var cols int
+						want := ratio.RawColumns(ratio.ChainOf(p.Estimator), p.D)
+						if raw, _, cols, err = DecodeCounts(b); err == nil && cols != want {
+							err = fmt.Errorf("%d columns, want %d", cols, want)
+						}
+						if err == nil {
+							data, err = ratio.Cook(p.Estimator, p.D, lat.N, sh.M, p.Beta, raw)
+						}
 					}
-					if cols != in.Cols {
-						return nil, fmt.Errorf("shard %s chunk %d has %d columns, want %d", sectorLabel(sectors, p.Shards[i].M), p.Shards[i].Chunk, cols, in.Cols)
+					if err != nil {
+						return nil, fmt.Errorf("shard %s chunk %d: %w", sectorLabel(sectors, sh.M), sh.Chunk, err)
 					}
 					out = append(out, data)
 				}

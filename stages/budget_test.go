@@ -13,6 +13,11 @@ func curveOf(tr *TransformOut) *transform.Curve {
 	return &transform.Curve{Theta: tr.Theta, Sign: Floats(tr.Sign), SignErr: Floats(tr.SignErr)}
 }
 
+// budgetOpts: the budget tests count statistics in chunks of a few lane
+// sweeps (one 64-lane sweep is worth tens of scalar sweeps), stored per
+// sweep (block 1); their protocol does not need the min_tau_ratio guard.
+var budgetOpts = branchOpts{block: 1}
+
 // The budget planner's prediction S* (from error ∝ 1/√S and the exact
 // ring sign, Baxter ch. 2) is tested over 10 seeds: with S* sweeps the
 // reach gets to X − Δθ in at least 8 runs, with S*/4 it stays below X in at
@@ -22,25 +27,26 @@ func TestBudgetPrediction(t *testing.T) {
 		t.Skip("30 pipeline runs")
 	}
 	l, beta := 24, 0.3
-	x := 0.48 // exact sign 1.6e−3, first zero 0.584
+	x := 0.53 // exact sign 1.6e−4, first zero 0.584
 	grid := TransformParams{ThetaMin: 0, ThetaMax: 0.6, Points: 61, ReachFactor: 2, ZeroFraction: 0.95, MaxBits: 4096}
 	dtheta := 0.01
 	exactSign, _ := exact.RingSign(l, beta, x)
-	// run about s sweeps per sector in chunks of at most 1000
+	const unit = 64 // sweeps per chunk
+	// run about s sweeps per sector in chunks of at most unit
 	runWith := func(s float64, seed uint64) *TransformOut {
-		chunks := int(math.Ceil(s / 1000))
-		_, tr := runBranch(t, 1, l, beta, chunks, int(math.Ceil(s/float64(chunks))), seed, grid)
+		chunks := int(math.Ceil(s / unit))
+		_, tr := runBranchOpts(t, budgetOpts, 1, l, beta, chunks, int(math.Ceil(s/float64(chunks))), seed, grid)
 		return tr
 	}
 	full, quarter := 0, 0
 	for seed := uint64(1); seed <= 10; seed++ {
-		_, tr := runBranch(t, 1, l, beta, 1, 1000, 100+seed, grid)
+		_, tr := runBranchOpts(t, budgetOpts, 1, l, beta, 1, unit, 100+seed, grid)
 		p, err := transform.Budget(curveOf(tr), transform.BudgetInput{N: l, Reach: float64(tr.Reach), Lo: math.NaN(), Hi: math.NaN(),
-			Zero: exact.RingFirstZero(l, beta), X: x, Sweeps: 1000, Factor: 2, ExactSign: exactSign, Probability: 0.5})
+			Zero: exact.RingFirstZero(l, beta), X: x, Sweeps: unit, Factor: 2, ExactSign: exactSign, Probability: 0.5})
 		if err != nil {
 			t.Fatal(err)
 		}
-		if p.Sweeps < 2000 {
+		if p.Sweeps < 2*unit {
 			t.Fatalf("seed %d: predicted %v sweeps; the test needs X beyond the base reach", seed, p.Sweeps)
 		}
 		a := runWith(p.Sweeps, 200+seed)
@@ -84,12 +90,13 @@ func binomialBand99(n int, p float64) (lo, hi int) {
 	return lo, hi
 }
 
-// honesty runs the budget-honesty protocol: per seed, a pilot of 2000
-// sweeps predicts S* for probability prob at θ = x; one independent run at
-// S* counts as a hit when its reach below the zero gets to x, and a nested
-// ×2 ladder (S*/8 … 2S*) finds the smallest sufficient sweeps. The hits must
-// lie in the 99% binomial band of prob and the median S*/S_min be ≤ 4.
-func honesty(t *testing.T, d, l int, beta, x, zero, exactSign float64, grid TransformParams, seeds uint64) {
+// honesty runs the budget-honesty protocol: per seed, a pilot of two
+// chunks of unit sweeps predicts S* for probability prob at θ = x; one
+// independent run at S* counts as a hit when its reach below the zero gets
+// to x, and a nested ×2 ladder (S*/8 … 2S*) finds the smallest sufficient
+// sweeps. The hits must lie in the 99% binomial band of prob and the
+// median S*/S_min be ≤ 4.
+func honesty(t *testing.T, d, l int, beta, x, zero, exactSign float64, grid TransformParams, seeds uint64, unit int) {
 	t.Helper()
 	const prob = 0.9
 	n := 1
@@ -97,19 +104,19 @@ func honesty(t *testing.T, d, l int, beta, x, zero, exactSign float64, grid Tran
 		n *= l
 	}
 	reaches := func(chunks int, seed uint64) bool {
-		_, tr := runBranch(t, d, l, beta, chunks, 1000, seed, grid)
+		_, tr := runBranchOpts(t, budgetOpts, d, l, beta, chunks, unit, seed, grid)
 		return float64(tr.ReachBelowZero) >= x-1e-9
 	}
 	hits := 0
 	var ratios []float64
 	for s := uint64(1); s <= seeds; s++ {
-		_, pilot := runBranch(t, d, l, beta, 2, 1000, 500+s, grid)
+		_, pilot := runBranchOpts(t, budgetOpts, d, l, beta, 2, unit, 500+s, grid)
 		p, err := transform.Budget(curveOf(pilot), transform.BudgetInput{N: n, Reach: float64(pilot.Reach), Lo: math.NaN(), Hi: math.NaN(),
-			Zero: zero, X: x, Sweeps: 2000, Factor: grid.ReachFactor, ExactSign: exactSign, Probability: prob})
+			Zero: zero, X: x, Sweeps: float64(2 * unit), Factor: grid.ReachFactor, ExactSign: exactSign, Probability: prob})
 		if err != nil {
 			t.Fatal(err)
 		}
-		star := int(math.Ceil(p.Sweeps / 1000)) // chunks of 1000 sweeps
+		star := int(math.Ceil(p.Sweeps / float64(unit))) // chunks
 		if star < 8 {
 			t.Fatalf("seed %d: S* = %v too small for a ×2 ladder below it", s, p.Sweeps)
 		}
@@ -146,7 +153,7 @@ func TestBudgetHonesty(t *testing.T) {
 	const l, beta, x = 24, 0.3, 0.5
 	grid := TransformParams{ThetaMin: 0, ThetaMax: 0.55, Points: 111, ReachFactor: 2, ZeroFraction: 0.95, MaxBits: 4096}
 	exactSign, _ := exact.RingSign(l, beta, x)
-	honesty(t, 1, l, beta, x, exact.RingFirstZero(l, beta), exactSign, grid, 24)
+	honesty(t, 1, l, beta, x, exact.RingFirstZero(l, beta), exactSign, grid, 24, 64)
 }
 
 // Budget honesty on the 8×8 torus at β = 0.2 (exact sign from the integer
@@ -165,5 +172,5 @@ func TestBudgetHonestyTorus(t *testing.T) {
 	ex := &ExactOut{Kind: ExactCounts, N: l * l, Beta: beta, Counts: counts}
 	sg, _ := ExactOnGrid(ex, []float64{x}, 4096)
 	zero, _ := firstZeroScan(l*l, counts.LnRho(beta), counts.LnRhoErr(beta))
-	honesty(t, 2, l, beta, x, zero, float64(sg[0]), grid, 10)
+	honesty(t, 2, l, beta, x, zero, float64(sg[0]), grid, 10, 16)
 }

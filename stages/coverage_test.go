@@ -22,6 +22,20 @@ func runBranch(t testing.TB, d, l int, beta float64, chunks, sweeps int, seed ui
 // Monomer).
 func runBranchOf(t testing.TB, sectors string, d, l int, beta float64, chunks, sweeps int, seed uint64, grid TransformParams) (*StitchOut, *TransformOut) {
 	t.Helper()
+	return runBranchOpts(t, branchOpts{sectors: sectors, block: testBlock(sweeps), minTau: 100}, d, l, beta, chunks, sweeps, seed, grid)
+}
+
+// branchOpts are the less common knobs of a test branch: the
+// representation, the block length and the min_tau_ratio guard.
+type branchOpts struct {
+	sectors string
+	block   int
+	minTau  float64
+}
+
+func runBranchOpts(t testing.TB, o branchOpts, d, l int, beta float64, chunks, sweeps int, seed uint64, grid TransformParams) (*StitchOut, *TransformOut) {
+	t.Helper()
+	sectors := o.sectors
 	lat, _ := lattice.New(d, l)
 	var shards []Shard
 	var inputs [][]byte
@@ -29,7 +43,7 @@ func runBranchOf(t testing.TB, sectors string, d, l int, beta float64, chunks, s
 	for _, m := range SectorsOf(sectors, ratio.Insertion, lat.N) {
 		for c := 0; c < chunks; c++ {
 			b, err := Sample(SampleParams{D: d, L: l, Beta: beta, Estimator: ratio.Insertion, Sectors: sectors, M: m, Chunk: c,
-				Sweeps: sweeps, Therm: 100, Seed: seed*7919 + uint64(1000*m+c)}).Run(nil)
+				Sweeps: sweeps, Therm: 100, Block: o.block, Seed: seed*7919 + uint64(1000*m+c)}).Run(nil)
 			if err != nil {
 				t.Fatal(err)
 			}
@@ -37,7 +51,7 @@ func runBranchOf(t testing.TB, sectors string, d, l int, beta float64, chunks, s
 			inputs = append(inputs, b)
 		}
 	}
-	rb, err := Ratios(RatiosParams{D: d, L: l, Beta: beta, Estimator: ratio.Insertion, Sectors: sectors, MinTauRatio: 100, Shards: shards}).Run(inputs)
+	rb, err := Ratios(RatiosParams{D: d, L: l, Beta: beta, Estimator: ratio.Insertion, Sectors: sectors, Block: o.block, MinTauRatio: o.minTau, Shards: shards}).Run(inputs)
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -55,6 +69,16 @@ func runBranchOf(t testing.TB, sectors string, d, l int, beta float64, chunks, s
 		t.Fatal("decode")
 	}
 	return &s, &tr
+}
+
+// testBlock is the block length of compact samples in these tests: the
+// largest divisor of sweeps not above 16 (the study default).
+func testBlock(sweeps int) int {
+	b := 16
+	for sweeps%b != 0 {
+		b--
+	}
+	return b
 }
 
 type coverage struct{ in1, in2, n int }
@@ -247,7 +271,7 @@ func TestMarginalZeros(t *testing.T) {
 		var pulls []float64
 		marginal := 0
 		for seed := uint64(1); seed <= seeds; seed++ {
-			_, tr := runBranch(t, 1, n, beta, chunks, 10000, 4000+seed, grid)
+			_, tr := runBranchOpts(t, branchOpts{block: 4, minTau: 100}, 1, n, beta, chunks, 320, 4000+seed, grid)
 			if tr.FirstZero == nil {
 				continue
 			}
@@ -257,13 +281,13 @@ func TestMarginalZeros(t *testing.T) {
 			}
 			pulls = append(pulls, (tr.FirstZero.Value-z)/tr.FirstZero.Error)
 		}
-		t.Logf("%d sweeps: %d of %d runs resolved a zero, %d marginal; pulls %.2f", chunks*10000, resolved, seeds, marginal, pulls)
+		t.Logf("%d lane sweeps: %d of %d runs resolved a zero, %d marginal; pulls %.2f", chunks*320, resolved, seeds, marginal, pulls)
 		return float64(marginal) / float64(max(resolved, 1)), resolved
 	}
 	if f, r := flagged(5, 60); r < 20 || f < 0.8 {
-		t.Errorf("50 000 sweeps: %d zeros, %.2f flagged marginal, want ≥ 20 and ≥ 0.8", r, f)
+		t.Errorf("1600 lane sweeps: %d zeros, %.2f flagged marginal, want ≥ 20 and ≥ 0.8", r, f)
 	}
 	if f, r := flagged(20, 12); r < 10 || f > 0.6 {
-		t.Errorf("200 000 sweeps: %d zeros, %.2f flagged marginal, want ≥ 10 and ≤ 0.6", r, f)
+		t.Errorf("6400 lane sweeps: %d zeros, %.2f flagged marginal, want ≥ 10 and ≤ 0.6", r, f)
 	}
 }

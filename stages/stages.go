@@ -16,8 +16,10 @@ import (
 	"fmt"
 	"math"
 	"strconv"
+	"strings"
 
 	"codeberg.org/sbinet/npyio"
+	"codeberg.org/sbinet/npyio/npy"
 	"gonum.org/v1/gonum/mat"
 
 	"strata/stages/lattice"
@@ -98,17 +100,23 @@ func I(x int) string { return strconv.Itoa(x) }
 // SampleParams identify one shard: chunk Chunk of the chain labelled M (a
 // magnetization, or with Sectors = Monomer a number of monomers n).
 type SampleParams struct {
-	D, L          int
-	Beta          float64
-	Estimator     string
-	Sectors       string // "" or Magnetization, or Monomer
-	M, Chunk      int
+	D, L      int
+	Beta      float64
+	Estimator string // picks the chain (ratio.ChainOf; monomer: fixed-n or two-sector)
+	Sectors   string // "" or Magnetization, or Monomer
+	M, Chunk  int
+	// Sweeps and Therm count sweeps of the 64-lane word for magnetization
+	// chains (each lane makes that many), of the single chain for monomer
+	// chains.
 	Sweeps, Therm int
-	Seed          uint64 // derived by the pipeline from the study seed and the identity above
+	// Block is the sweeps summed into one stored row (magnetization).
+	Block int
+	Seed  uint64 // derived by the pipeline from the study seed and the identity above
 }
 
-// Columns returns the number of columns an estimator records per sweep
-// (the same for both representations: bennett has no monomer form).
+// Columns returns the number of measurement columns an estimator reads per
+// row (after ratio.Cook for magnetization shards; monomer shards store
+// them): insertion 2, bennett 2·(2d+1), indicator 1.
 func Columns(estimator string, d int) int {
 	switch estimator {
 	case ratio.Insertion:
@@ -119,8 +127,12 @@ func Columns(estimator string, d int) int {
 	return 1
 }
 
-// Sample returns the task that runs one shard and stores its per-sweep
-// measurement series as a float64 .npy array of shape (sweeps, columns).
+// Sample returns the task that runs one shard. Magnetization shards store
+// the compact lane-summed block counts of their chain (ratio.RawColumns)
+// as a uint32 .npy array of shape (sweeps/block, columns); the key depends
+// on the chain, not on the estimator, so insertion and bennett share
+// shards. Monomer shards store the per-sweep measurement series as a
+// float64 .npy array of shape (sweeps, columns).
 func Sample(p SampleParams) Task {
 	if p.Sectors == Monomer {
 		return Task{
@@ -133,11 +145,12 @@ func Sample(p SampleParams) Task {
 			Run: func([][]byte) ([]byte, error) { return monomerSample(p) },
 		}
 	}
+	chain := ratio.ChainOf(p.Estimator)
 	return Task{
 		Stage: SampleStage, Version: sampleVersion,
 		Params: []Param{
-			{"beta", F(p.Beta)}, {"chunk", I(p.Chunk)}, {"dimension", I(p.D)},
-			{"estimator", p.Estimator}, {"magnetization", I(p.M)}, {"seed", strconv.FormatUint(p.Seed, 10)},
+			{"beta", F(p.Beta)}, {"block_sweeps", I(p.Block)}, {"chain", chain}, {"chunk", I(p.Chunk)}, {"dimension", I(p.D)},
+			{"lanes", I(sampler.Lanes)}, {"magnetization", I(p.M)}, {"seed", strconv.FormatUint(p.Seed, 10)},
 			{"size", I(p.L)}, {"sweeps", I(p.Sweeps)}, {"thermalization", I(p.Therm)},
 		},
 		Run: func([][]byte) ([]byte, error) {
@@ -146,32 +159,54 @@ func Sample(p SampleParams) Task {
 				return nil, err
 			}
 			c := sampler.Chain{Lat: lat, Beta: p.Beta, M: p.M, Therm: p.Therm, Sweeps: p.Sweeps, Seed: p.Seed}
-			cols := Columns(p.Estimator, p.D)
-			var data []float64
-			switch p.Estimator {
-			case ratio.Indicator:
-				data, err = sampler.Pair(c)
-			case ratio.Insertion:
-				var hist []float64
-				hist, err = sampler.Sector(c)
-				if err == nil {
-					w := 2 * sampler.HistWidth(p.D)
-					data = make([]float64, p.Sweeps*2)
-					for t := 0; t < p.Sweeps; t++ {
-						ratio.InsertionColumns(p.D, lat.N, p.M, p.Beta, hist[t*w:(t+1)*w], data[2*t:2*t+2])
-					}
-				}
-			case ratio.Bennett:
-				data, err = sampler.Sector(c)
-			default:
-				err = fmt.Errorf("unknown estimator %q", p.Estimator)
+			var raw []uint32
+			if chain == ratio.ChainPair {
+				raw, err = sampler.PairLanes(c, p.Block)
+			} else {
+				raw, err = sampler.SectorLanes(c, p.Block)
 			}
 			if err != nil {
 				return nil, err
 			}
-			return EncodeNpy(data, p.Sweeps, cols)
+			return EncodeCounts(raw, ratio.RawColumns(chain, p.D))
 		},
 	}
+}
+
+// EncodeCounts writes row-major uint32 counts with cols columns as a 2-D
+// .npy array.
+func EncodeCounts(raw []uint32, cols int) ([]byte, error) {
+	rows := make([][]uint32, len(raw)/cols)
+	for i := range rows {
+		rows[i] = raw[i*cols : (i+1)*cols]
+	}
+	var buf bytes.Buffer
+	if len(rows) == 0 {
+		return nil, fmt.Errorf("no rows to store")
+	}
+	if err := npy.Write(&buf, rows); err != nil {
+		return nil, err
+	}
+	return buf.Bytes(), nil
+}
+
+// DecodeCounts reads a 2-D uint32 .npy array, returning it row-major.
+func DecodeCounts(b []byte) (raw []uint32, rows, cols int, err error) {
+	r, err := npy.NewReader(bytes.NewReader(b))
+	if err != nil {
+		return nil, 0, 0, fmt.Errorf("reading samples: %w", err)
+	}
+	shape := r.Header.Descr.Shape
+	if len(shape) != 2 || strings.Trim(r.Header.Descr.Type, `'"`) != "<u4" {
+		return nil, 0, 0, fmt.Errorf("reading samples: want a 2-D uint32 array, have %s of shape %v", r.Header.Descr.Type, shape)
+	}
+	if err := r.Read(&raw); err != nil {
+		return nil, 0, 0, fmt.Errorf("reading samples: %w", err)
+	}
+	if len(raw) != shape[0]*shape[1] {
+		return nil, 0, 0, fmt.Errorf("reading samples: %d values for shape %v", len(raw), shape)
+	}
+	return raw, shape[0], shape[1], nil
 }
 
 // EncodeNpy writes a row-major rows×cols float64 array as .npy bytes.

@@ -32,7 +32,7 @@ type Block struct {
 	Names  []string    // one per variable
 	Values []float64   // central values
 	Cov    [][]float64 // covariance of the variables
-	Tau    []float64   // τ_int per variable, in sweeps
+	Tau    []float64   // τ_int per variable, in sweeps (rows while estimating)
 }
 
 // Term is one coefficient of the linear error model.
@@ -72,6 +72,10 @@ type Input struct {
 	// representation (labels n, pairs n = 2, 4, …, ≤ N), not
 	// magnetization sectors M.
 	Monomer bool
+	// SweepsPerRow is the sweeps one measurement row stands for (the block
+	// length of compact samples; 0 or 1: one sweep). τ_int is analysed in
+	// rows and reported in sweeps.
+	SweepsPerRow int
 	// MinTauRatio refuses a variable with fewer than MinTauRatio·τ_int
 	// measurements (Wolff's rule of thumb is about 100); WarnTauRatio warns.
 	MinTauRatio, WarnTauRatio float64
@@ -99,6 +103,14 @@ func pairs(n int) []int {
 		out = append(out, m)
 	}
 	return out
+}
+
+// unit names a measurement row in messages.
+func (in *Input) unit() string {
+	if in.SweepsPerRow > 1 {
+		return fmt.Sprintf("blocks of %d sweeps", in.SweepsPerRow)
+	}
+	return "sweeps"
 }
 
 // label names sector m in messages: "M=12" or "n=12".
@@ -193,8 +205,8 @@ func (in *Input) checkTau(sector int, name string, g analysis.Result) error {
 		return nil // zero variance: exact, exempt
 	}
 	if in.MinTauRatio > 0 && float64(g.N) < in.MinTauRatio*g.Tau {
-		return fmt.Errorf("sector %s: %s has τ_int = %.3g sweeps but only %d measurements (need ≥ %g τ_int); raise sample.sweeps",
-			in.label(sector), name, g.Tau, g.N, in.MinTauRatio)
+		return fmt.Errorf("sector %s: %s has τ_int = %.3g %s but only %d of them (need ≥ %g τ_int); raise sample.sweeps",
+			in.label(sector), name, g.Tau, in.unit(), g.N, in.MinTauRatio)
 	}
 	return nil
 }
@@ -208,7 +220,7 @@ func (in *Input) warnTau(r *Result, b Block, ch [][]float64) {
 	}
 	for i, t := range b.Tau {
 		if in.WarnTauRatio > 0 && b.Cov[i][i] > 0 && float64(n) < in.WarnTauRatio*t {
-			r.Warnings = append(r.Warnings, fmt.Sprintf("sector %s: %s has a large τ_int = %.3g sweeps for %d measurements", in.label(b.Sector), b.Names[i], t, n))
+			r.Warnings = append(r.Warnings, fmt.Sprintf("sector %s: %s has a large τ_int = %.3g %s for %d of them", in.label(b.Sector), b.Names[i], t, in.unit(), n))
 		}
 	}
 }
@@ -252,8 +264,26 @@ func (in *Input) chunks(m int) ([][]float64, error) {
 	return c, nil
 }
 
-// Estimate dispatches on the estimator name.
+// Estimate dispatches on the estimator name; τ_int in the result is in
+// sweeps.
 func Estimate(estimator string, in *Input) (*Result, error) {
+	r, err := in.estimate(estimator)
+	if err != nil || in.SweepsPerRow <= 1 {
+		return r, err
+	}
+	f := float64(in.SweepsPerRow)
+	for i := range r.Blocks {
+		for j := range r.Blocks[i].Tau {
+			r.Blocks[i].Tau[j] *= f
+		}
+	}
+	for i := range r.Ratios {
+		r.Ratios[i].Tau *= f
+	}
+	return r, nil
+}
+
+func (in *Input) estimate(estimator string) (*Result, error) {
 	if in.Monomer {
 		switch estimator {
 		case Insertion:

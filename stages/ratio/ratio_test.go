@@ -23,29 +23,27 @@ func estimate(t testing.TB, est string, d, l int, beta float64, sweeps, chunks i
 		t.Fatal(err)
 	}
 	n := lat.N
-	cols := map[string]int{ratio.Insertion: 2, ratio.Bennett: 2 * sampler.HistWidth(d), ratio.Indicator: 1}[est]
-	in := &ratio.Input{D: d, N: n, Beta: beta, Cols: cols, Series: map[int][][]float64{}, MinTauRatio: 100}
+	block := 16
+	for sweeps%block != 0 {
+		block--
+	}
+	in := &ratio.Input{D: d, N: n, Beta: beta, Cols: map[string]int{ratio.Insertion: 2, ratio.Bennett: 2 * sampler.HistWidth(d), ratio.Indicator: 1}[est], Series: map[int][][]float64{}, MinTauRatio: 100, SweepsPerRow: block}
 	for _, m := range ratio.Sectors(est, n) {
 		for c := 0; c < chunks; c++ {
 			ch := sampler.Chain{Lat: lat, Beta: beta, M: m, Therm: 100, Sweeps: sweeps,
 				Seed: seed*1000003 + uint64(m+n)*101 + uint64(c)}
-			var data []float64
-			switch est {
-			case ratio.Indicator:
-				data, err = sampler.Pair(ch)
-			default:
-				data, err = sampler.Sector(ch)
+			var raw []uint32
+			if ratio.ChainOf(est) == ratio.ChainPair {
+				raw, err = sampler.PairLanes(ch, block)
+			} else {
+				raw, err = sampler.SectorLanes(ch, block)
 			}
 			if err != nil {
 				t.Fatal(err)
 			}
-			if est == ratio.Insertion {
-				w := 2 * sampler.HistWidth(d)
-				cooked := make([]float64, 2*sweeps)
-				for s := 0; s < sweeps; s++ {
-					ratio.InsertionColumns(d, n, m, beta, data[s*w:(s+1)*w], cooked[2*s:2*s+2])
-				}
-				data = cooked
+			data, err := ratio.Cook(est, d, n, m, beta, raw)
+			if err != nil {
+				t.Fatal(err)
 			}
 			in.Series[m] = append(in.Series[m], data)
 		}
@@ -138,7 +136,7 @@ func TestLatticesAgainstEnumeration(t *testing.T) {
 func TestTopSectorsClosedForm(t *testing.T) {
 	for _, c := range []struct{ d, l int }{{1, 7}, {2, 4}, {3, 3}} {
 		beta := 0.37
-		res, n := estimate(t, ratio.Insertion, c.d, c.l, beta, 200, 1, 5)
+		res, n := estimate(t, ratio.Insertion, c.d, c.l, beta, 2000, 1, 5)
 		dd := float64(c.d)
 		want := []float64{
 			-math.Log(float64(n) * math.Exp(-4*dd*beta)),

@@ -299,8 +299,9 @@ func oneHot(k int, c0, c1, c2 uint64) uint64 {
 
 // PairLanes runs 64 independent two-sector chains on {M, M−2} packed in
 // words (each lane starts from its own uniformly random configuration of
-// sector M−2) and returns, per block of blockSweeps sweeps, the count of
-// (proposal, lane) pairs after which the lane was in sector M.
+// sector M−2) and returns, per block of blockSweeps sweeps, two counts:
+// the (proposal, lane) pairs after which the lane was in sector M, and all
+// (proposal, lane) pairs (N·64·blockSweeps), row-major.
 //
 // A sweep is N proposals. Each proposal draws one site i uniformly for all
 // lanes; a lane in M may flip i if it is up, a lane in M−2 if it is down
@@ -320,7 +321,7 @@ func PairLanes(c Chain, blockSweeps int) ([]uint32, error) {
 	ls := &laneState{lat: lat, s: randomLanes(n, (n+c.M-2)/2, &r)}
 	thr := thresholds64(4*c.Beta, d)
 	var inUpper uint64 // lanes now in sector M
-	out := make([]uint32, c.Sweeps/blockSweeps)
+	out := make([]uint32, 2*(c.Sweeps/blockSweeps))
 	var acc uint64
 	var act, actThr [8]uint64
 	total := c.Therm + c.Sweeps
@@ -367,7 +368,8 @@ func PairLanes(c Chain, blockSweeps int) ([]uint32, error) {
 		t := sweep - c.Therm
 		acc += count
 		if (t+1)%blockSweeps == 0 {
-			out[t/blockSweeps] = uint32(acc)
+			out[2*(t/blockSweeps)] = uint32(acc)
+			out[2*(t/blockSweeps)+1] = uint32(n * Lanes * blockSweeps)
 			acc = 0
 		}
 	}

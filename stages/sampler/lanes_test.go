@@ -232,9 +232,9 @@ func TestPairLanesAgainstExact(t *testing.T) {
 			if err != nil {
 				t.Fatal(err)
 			}
-			x := make([]float64, len(out))
-			for i, v := range out {
-				x[i] = float64(v) / float64(n*Lanes*block)
+			x := make([]float64, len(out)/2)
+			for i := range x {
+				x[i] = float64(out[2*i]) / float64(out[2*i+1])
 			}
 			g := analysis.Gamma([][]float64{x}, analysis.DefaultS)
 			got := math.Log(g.Mean / (1 - g.Mean))
