@@ -226,9 +226,9 @@ type CostFit struct {
 	Beta float64 `json:"beta"`
 	// Sectors is the representation whose sizes were fitted.
 	Sectors string        `json:"sectors"`
-	Sweeps int           `json:"sweeps"`
-	B      stages.ValErr `json:"b"`
-	Sizes  []int         `json:"sizes"`
+	Sweeps  int           `json:"sweeps"`
+	B       stages.ValErr `json:"b"`
+	Sizes   []int         `json:"sizes"`
 }
 
 // branchesByBeta groups the branches by β and representation, in plan

@@ -11,8 +11,8 @@ import (
 
 	"strata/cache"
 	"strata/stages"
-	"strata/stages/ratio"
 	"strata/stages/exact"
+	"strata/stages/ratio"
 )
 
 // Estimate is what a run of a plan needs: the bytes its new cache objects

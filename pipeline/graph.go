@@ -140,7 +140,6 @@ func shardSeed(st *Study, b Branch, m, chunk int) uint64 {
 		stages.F(b.Beta), ratio.ChainOf(st.Sample.Estimator), m, chunk)
 }
 
-
 func replicaSeed(st *Study, b Branch) uint64 {
 	if b.Monomer() {
 		return seedOf("replica-seed\n%d\n%d\n%d\n%s\nmonomer\n", st.Sample.Seed, st.Model.Dimension, b.L, stages.F(b.Beta))
