@@ -33,7 +33,16 @@ func TestChainsGolden(t *testing.T) {
 			if err != nil {
 				t.Fatal(err)
 			}
-			fmt.Fprintf(&b, "d=%d L=%d M=%d beta=%v sector %x pair %x\n", c.d, c.l, c.m, beta, digest(sec), digest(pair))
+			lanes, err := SectorLanes(Chain{Lat: lat, Beta: beta, M: c.m, Therm: 7, Sweeps: 40, Seed: 99}, 8)
+			if err != nil {
+				t.Fatal(err)
+			}
+			pairLanes, err := PairLanes(ch, 8)
+			if err != nil {
+				t.Fatal(err)
+			}
+			fmt.Fprintf(&b, "d=%d L=%d M=%d beta=%v sector %x pair %x lanes %x pair-lanes %x\n", c.d, c.l, c.m, beta,
+				digest(sec), digest(pair), digestCounts(lanes), digestCounts(pairLanes))
 		}
 	}
 	path := filepath.Join("testdata", "chains.golden")
@@ -49,6 +58,12 @@ func TestChainsGolden(t *testing.T) {
 	if b.String() != string(want) {
 		t.Errorf("chain output changed (bump sampleVersion and run with -update if intended):\n got %s\nwant %s", b.String(), want)
 	}
+}
+
+func digestCounts(x []uint32) []byte {
+	h := sha256.New()
+	binary.Write(h, binary.LittleEndian, x)
+	return h.Sum(nil)[:8]
 }
 
 func digest(x []float64) []byte {
