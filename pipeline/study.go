@@ -60,14 +60,22 @@ type SampleSpec struct {
 	Sectors []string `toml:"sectors" json:"sectors"`
 	// BlockSweeps is the sweeps summed into one stored row of a
 	// magnetization shard (default: the largest divisor of chunk_sweeps
-	// not above 16).
+	// not above 16 that leaves every chunk at least minBlocks rows).
 	BlockSweeps int `toml:"block_sweeps" json:"block_sweeps"`
 }
 
-// defaultBlock returns the largest divisor of chunk not above 16.
+// minBlocks is the fewest rows per chunk the default block length leaves:
+// with blocks nearly independent (τ_int ≈ 0.5–1.5 blocks, estimated with
+// a noise of ≈ τ√(14/rows)) it keeps the Γ-method's guard (100 τ_int) from
+// refusing sectors by chance in studies of hundreds of sectors. It depends
+// on chunk_sweeps only, so that more sweeps reuse every stored chunk.
+const minBlocks = 256
+
+// defaultBlock returns the largest divisor of chunk not above 16 that
+// leaves at least minBlocks blocks in it (1 when none does).
 func defaultBlock(chunk int) int {
 	for b := 16; b > 1; b-- {
-		if chunk%b == 0 {
+		if chunk%b == 0 && chunk/b >= minBlocks {
 			return b
 		}
 	}
@@ -218,7 +226,7 @@ func (e ExpectSpec) sectors() string {
 func Defaults() Study {
 	return Study{
 		Name: "study",
-		Sample: SampleSpec{Sweeps: Sweeps{4096}, ChunkSweeps: 1024, Thermalization: 100,
+		Sample: SampleSpec{Sweeps: Sweeps{4096}, ChunkSweeps: 4096, Thermalization: 100,
 			Seed: 1, Estimator: ratio.Insertion, Sectors: []string{stages.Magnetization}},
 		Ratios:    RatiosSpec{MinTauRatio: 100, WarnTauRatio: 1000},
 		Stitch:    StitchSpec{Replicas: 200},

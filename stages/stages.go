@@ -16,10 +16,8 @@ import (
 	"fmt"
 	"math"
 	"strconv"
-	"strings"
 
 	"codeberg.org/sbinet/npyio"
-	"codeberg.org/sbinet/npyio/npy"
 	"gonum.org/v1/gonum/mat"
 
 	"strata/stages/lattice"
@@ -171,42 +169,6 @@ func Sample(p SampleParams) Task {
 			return EncodeCounts(raw, ratio.RawColumns(chain, p.D))
 		},
 	}
-}
-
-// EncodeCounts writes row-major uint32 counts with cols columns as a 2-D
-// .npy array.
-func EncodeCounts(raw []uint32, cols int) ([]byte, error) {
-	rows := make([][]uint32, len(raw)/cols)
-	for i := range rows {
-		rows[i] = raw[i*cols : (i+1)*cols]
-	}
-	var buf bytes.Buffer
-	if len(rows) == 0 {
-		return nil, fmt.Errorf("no rows to store")
-	}
-	if err := npy.Write(&buf, rows); err != nil {
-		return nil, err
-	}
-	return buf.Bytes(), nil
-}
-
-// DecodeCounts reads a 2-D uint32 .npy array, returning it row-major.
-func DecodeCounts(b []byte) (raw []uint32, rows, cols int, err error) {
-	r, err := npy.NewReader(bytes.NewReader(b))
-	if err != nil {
-		return nil, 0, 0, fmt.Errorf("reading samples: %w", err)
-	}
-	shape := r.Header.Descr.Shape
-	if len(shape) != 2 || strings.Trim(r.Header.Descr.Type, `'"`) != "<u4" {
-		return nil, 0, 0, fmt.Errorf("reading samples: want a 2-D uint32 array, have %s of shape %v", r.Header.Descr.Type, shape)
-	}
-	if err := r.Read(&raw); err != nil {
-		return nil, 0, 0, fmt.Errorf("reading samples: %w", err)
-	}
-	if len(raw) != shape[0]*shape[1] {
-		return nil, 0, 0, fmt.Errorf("reading samples: %d values for shape %v", len(raw), shape)
-	}
-	return raw, shape[0], shape[1], nil
 }
 
 // EncodeNpy writes a row-major rows×cols float64 array as .npy bytes.
