@@ -74,3 +74,22 @@ func FuzzDecodeCounts(f *testing.F) {
 		}
 	})
 }
+
+// A stored fixed-M shard of a 3D lattice (14 count columns) with blocks
+// of 16 sweeps costs at most 4 bytes per sweep, its cache index line
+// ("v1 <hex output> <size>\n") included: a 3D 16³ study at 100 000 sweeps
+// per sector (2049 sectors) then stays under 0.8 GB of sample objects.
+func TestCompactSampleBytes(t *testing.T) {
+	const sweeps = 10000
+	b, err := Sample(SampleParams{D: 3, L: 3, Beta: 0.2, Estimator: "insertion", M: 3, Sweeps: sweeps, Therm: 10, Block: 16, Seed: 1}).Run(nil)
+	if err != nil {
+		t.Fatal(err)
+	}
+	index := len("v1 ") + 64 + len(" 35072\n")
+	perSweep := float64(len(b)+index) / sweeps
+	total := perSweep * 2049 * 100000
+	t.Logf("%.3f bytes per (sector × sweep); 3D 16³ at 100 000 sweeps: %.3g GB", perSweep, total/1e9)
+	if perSweep > 4 || total > 0.8e9 {
+		t.Errorf("%.3f bytes per sweep (%.3g GB for 3D 16³ at 100 000 sweeps), want ≤ 4 (< 0.8 GB)", perSweep, total/1e9)
+	}
+}
