@@ -151,3 +151,34 @@ func TestMonomerStudyRefusals(t *testing.T) {
 		}
 	}
 }
+
+// The sample key and seed depend on the chain, not on the estimator:
+// insertion and bennett plan the same shards (a reanalysis with the other
+// one resamples nothing), indicator its own two-sector chains.
+func TestEstimatorsShareShards(t *testing.T) {
+	keys := func(est string) map[string]bool {
+		st, err := ParseStudy("s.toml", []byte("[model]\ndimension = 2\nsizes = [4]\nbetas = [0.3]\n[sample]\nestimator = \""+est+"\"\n"), nil)
+		if err != nil {
+			t.Fatal(err)
+		}
+		out := map[string]bool{}
+		for _, n := range BuildPlan(st).Nodes {
+			if n.Task.Stage == "sample" {
+				out[n.Key.String()] = true
+			}
+		}
+		return out
+	}
+	ins, ben, ind := keys("insertion"), keys("bennett"), keys("indicator")
+	if len(ins) == 0 || len(ins) != len(ben) {
+		t.Fatalf("%d insertion shards, %d bennett shards", len(ins), len(ben))
+	}
+	for k := range ins {
+		if !ben[k] {
+			t.Fatalf("insertion shard %s is not a bennett shard", k)
+		}
+		if ind[k] {
+			t.Fatalf("the indicator chain shares shard %s", k)
+		}
+	}
+}
