@@ -65,8 +65,13 @@ func EstimatePlan(p *Plan, c *cache.Cache, jobs int) Estimate {
 		}
 		stale := func(x *Node) bool { return x != nil && (c == nil || !c.Listed(x.Key)) }
 		if stale(b.Ratios) {
-			// decoded and cooked rows of one sector: float64, ≤ 2W columns
-			cooked := int64(st.Chunks()) * int64(st.Sample.ChunkSweeps) * 8 * int64(stages.Columns(st.Sample.Estimator, st.Model.Dimension))
+			// decoded and cooked rows of one sector: float64, ≤ 2W columns;
+			// a magnetization row is a block
+			rows := int64(st.Chunks()) * int64(st.Sample.ChunkSweeps)
+			if !b.Branch.Monomer() {
+				rows /= int64(max(st.Sample.BlockSweeps, 1))
+			}
+			cooked := rows * 8 * int64(stages.Columns(st.Sample.Estimator, st.Model.Dimension))
 			note(b.Ratios, 3*cooked, true)
 		}
 		if stale(b.Stitch) {
