@@ -265,3 +265,35 @@ func TestShortSeriesRefused(t *testing.T) {
 		t.Errorf("long series refused: %v", err)
 	}
 }
+
+// A monomer sector whose series cannot be analysed (here the sectors
+// n = 4, 6 of an 8-ring never sampled the move they measure, A ≡ 0; n = 8
+// has no A) is reported by sector in one error, never a panic or an
+// infinite ratio.
+func TestMonomerSectorRefused(t *testing.T) {
+	const n = 8
+	in := &ratio.Input{D: 1, N: n, Beta: 0.5, Cols: 2, Monomer: true, Series: map[int][][]float64{}, MinTauRatio: 100}
+	for m := 0; m <= n; m += 2 {
+		rows := make([]float64, 2*2000)
+		for s := 0; s < 2000; s++ {
+			a, b := 1+0.1*float64(s%7), 1+0.1*float64(s%5)
+			if m >= 4 {
+				a = 0 // never sampled
+			}
+			rows[2*s], rows[2*s+1] = a, b
+		}
+		in.Series[m] = [][]float64{rows}
+	}
+	_, err := ratio.Estimate(ratio.Insertion, in)
+	if err == nil {
+		t.Fatal("sectors with A ≡ 0 were accepted")
+	}
+	for _, want := range []string{"n=4", "n=6", "2 monomer sector(s)"} {
+		if !strings.Contains(err.Error(), want) {
+			t.Errorf("error %q does not name %s", err, want)
+		}
+	}
+	if _, err := ratio.Estimate(ratio.Bennett, in); err == nil || !strings.Contains(err.Error(), "no monomer form") {
+		t.Errorf("bennett on monomer sectors: %v", err)
+	}
+}
