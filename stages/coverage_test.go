@@ -164,10 +164,14 @@ func TestCoverage(t *testing.T) {
 // 4×4 high-precision Fourier sum of exact counts, ln D(n) against the
 // ring's link transfer matrix and the Krawtchouk transform of the 4×4
 // counts. Then the monomer first zero of one longer run within 3σ of the
-// exact zero, on a ring and on 4×4.
+// exact zero, on a ring and on 4×4. 400 runs (with the bands of check):
+// the 64-lane link chain's ring errors are honest — the spread of ln D(4)
+// over 300 runs against its mean error is 0.98–1.01 on three other seed
+// sets — but seeds 1–200 alone fluctuate to a 1σ coverage of 0.78 (the
+// spread 2.5σ below its expectation).
 func TestMonomerCoverage(t *testing.T) {
 	if testing.Short() {
-		t.Skip("200 independent runs per case")
+		t.Skip("400 independent runs per case")
 	}
 	cases := []struct {
 		d, l   int
@@ -199,7 +203,7 @@ func TestMonomerCoverage(t *testing.T) {
 			zero = 0.18762884087762308 // strata exact --dimension 2 --size 4 --beta 0.3 (exact counts)
 		}
 		var cs, cm, cd coverage
-		for seed := uint64(1); seed <= 200; seed++ {
+		for seed := uint64(1); seed <= 400; seed++ {
 			st, tr := runBranchOf(t, Monomer, c.d, c.l, c.beta, c.chunks, 1000, seed, grid)
 			g := 5
 			cs.add(float64(tr.Sign[g]), float64(tr.SignErr[g]), sign)

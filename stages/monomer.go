@@ -37,27 +37,38 @@ func SumFor(sectors string, n int, grid []float64) transform.Sum {
 	return transform.NewTable(n, grid)
 }
 
-// monomerSample runs one shard of the link chain: insertion → fixed n,
-// columns A, B; indicator → the two-sector chain {n−2, n}, column: the
-// fraction of time in n.
+// monomerSample runs one shard of the link chain: insertion → 64 lanes at
+// fixed n, columns A, B averaged over the lanes per sweep; indicator → the
+// single two-sector chain {n−2, n}, column: the fraction of time in n.
 func monomerSample(p SampleParams) ([]byte, error) {
 	lt, err := links.NewLattice(p.D, p.L)
 	if err != nil {
 		return nil, err
 	}
 	c := links.Chain{Lat: lt, Beta: p.Beta, Monomers: p.M, Therm: p.Therm, Sweeps: p.Sweeps, Seed: p.Seed}
+	var data []float64
 	switch p.Estimator {
 	case ratio.Insertion:
+		data, err = c.RunLanes()
 	case ratio.Indicator:
 		c.TwoSector = true
+		data, err = c.Run()
 	default:
 		return nil, fmt.Errorf("estimator %q has no monomer chain (use %s or %s)", p.Estimator, ratio.Insertion, ratio.Indicator)
 	}
-	data, err := c.Run()
 	if err != nil {
 		return nil, err
 	}
 	return EncodeNpy(data, p.Sweeps, Columns(p.Estimator, p.D))
+}
+
+// monomerLanes is the number of lanes of a monomer chain: 64 for the
+// fixed-n chain (insertion), 1 for the two-sector chain (indicator).
+func monomerLanes(estimator string) int {
+	if estimator == ratio.Insertion {
+		return links.Lanes
+	}
+	return 1
 }
 
 // MonomerExactOut is the exact monomer density of one branch.

@@ -233,3 +233,150 @@ func BenchmarkChain(b *testing.B) {
 		})
 	}
 }
+
+// laneRatios is sectorRatios for the 64-lane chain (lane-averaged A and B
+// per sweep).
+func laneRatios(t *testing.T, lt *Lattice, beta float64, sweeps int, seed uint64) (lnr, errs []float64) {
+	t.Helper()
+	top := lt.N - lt.N%2
+	A := map[int]analysis.Result{}
+	B := map[int]analysis.Result{}
+	for n := 0; n <= top; n += 2 {
+		data, err := Chain{Lat: lt, Beta: beta, Monomers: n, Therm: 200, Sweeps: sweeps, Seed: seed + uint64(n)}.RunLanes()
+		if err != nil {
+			t.Fatal(err)
+		}
+		a, b := make([]float64, sweeps), make([]float64, sweeps)
+		for s := 0; s < sweeps; s++ {
+			a[s], b[s] = data[2*s], data[2*s+1]
+		}
+		A[n] = analysis.Gamma([][]float64{a}, analysis.DefaultS)
+		B[n] = analysis.Gamma([][]float64{b}, analysis.DefaultS)
+	}
+	for n := 0; n+2 <= top; n += 2 {
+		a, b := A[n], B[n+2]
+		lnr = append(lnr, math.Log(a.Mean)-math.Log(b.Mean))
+		errs = append(errs, math.Hypot(a.Err/a.Mean, b.Err/b.Mean))
+	}
+	return lnr, errs
+}
+
+// The 64-lane link chain against the exact D (Krawtchouk transform of
+// exact counts; the ring's link transfer matrix for 32 and 64 sites):
+// χ² below the 99% point and no pull beyond 4σ.
+func TestLaneChainAgainstExact(t *testing.T) {
+	c33, _ := exact.Enumerate(mustLat(t, 2, 3))
+	c44, _ := exact.TorusCounts(4)
+	c333, _ := exact.Enumerate(mustLat(t, 3, 3))
+	cases := []struct {
+		name string
+		d, l int
+		beta float64
+		rho  exact.RhoFunc
+	}{
+		{"ring8", 1, 8, 0.5, exact.RingRho(8, 0.5)},
+		{"ring32", 1, 32, 0.2, nil},
+		{"ring64", 1, 64, 1.0, nil},
+		{"3x3", 2, 3, 0.3, c33.Rho(0.3)},
+		{"4x4", 2, 4, 0.3, c44.Rho(0.3)},
+		{"3x3x3", 3, 3, 0.2, c333.Rho(0.2)},
+	}
+	for _, c := range cases {
+		lt, _ := NewLattice(c.d, c.l)
+		got, errs := laneRatios(t, lt, c.beta, 2000, 23)
+		var want []float64
+		if c.rho != nil {
+			want = exactRatios(t, c.rho, lt.N)
+		} else {
+			lnD, _ := exact.RingMonomerLnD(lt.N, c.beta)
+			for m := 1; m < len(lnD); m++ {
+				want = append(want, lnD[m]-lnD[m-1])
+			}
+		}
+		chi2 := 0.0
+		for i := range got {
+			p := (got[i] - want[i]) / errs[i]
+			chi2 += p * p
+			if math.Abs(p) > 4 {
+				t.Errorf("%s n=%d→%d: ln ratio %.5f ± %.5f, exact %.5f (pull %.1f)", c.name, 2*i, 2*i+2, got[i], errs[i], want[i], p)
+			}
+		}
+		dof := float64(len(got))
+		if chi2 > dof+2.33*math.Sqrt(2*dof)+2 {
+			t.Errorf("%s: χ² = %.1f for %v ratios", c.name, chi2, dof)
+		}
+		t.Logf("%s: χ² = %.1f / %v", c.name, chi2, dof)
+	}
+}
+
+// BenchmarkLaneChain reports ns per attempted lane-move (the proposals of
+// a sweep times 64 lanes, measurement included) of the 64-lane link chain.
+func BenchmarkLaneChain(b *testing.B) {
+	for _, c := range []struct{ d, l, n int }{{1, 4096, 64}, {2, 64, 64}, {3, 16, 64}} {
+		b.Run(fmt.Sprintf("d%d_L%d", c.d, c.l), func(b *testing.B) {
+			lt, err := NewLattice(c.d, c.l)
+			if err != nil {
+				b.Fatal(err)
+			}
+			const sweeps = 100
+			b.ResetTimer()
+			for i := 0; i < b.N; i++ {
+				if _, err := (Chain{Lat: lt, Beta: 0.3, Monomers: c.n, Sweeps: sweeps, Seed: uint64(i)}).RunLanes(); err != nil {
+					b.Fatal(err)
+				}
+			}
+			b.ReportMetric(float64(b.Elapsed().Nanoseconds())/float64(b.N*sweeps*lt.Proposals()*Lanes), "ns/lane-move")
+		})
+	}
+}
+
+// The link lanes are independent chains apart from the shared choice of
+// the proposals: the variance of the lane-averaged A is compared with the
+// mean per-lane variance / 64 (4×4 at β = 0.3, n = 4, errors of the mean
+// by the Γ-method, autocorrelation included); lanes copying each other
+// would give up to 64. The test fails above 1.5 or below 0.67.
+func TestLinkLanesIndependent(t *testing.T) {
+	lt, _ := NewLattice(2, 4)
+	const beta = 0.3
+	tt := math.Tanh(beta)
+	perLane := make([][]float64, Lanes)
+	var avg []float64
+	_, err := Chain{Lat: lt, Beta: beta, Monomers: 4, Therm: 200, Sweeps: 4000, Seed: 9}.runLanes(func(k, odd []uint64) {
+		var a [Lanes]float64
+		for b, e := range lt.Ends {
+			ee := ^odd[e[0]] &^ odd[e[1]]
+			for l := 0; l < Lanes; l++ {
+				if ee>>l&1 == 0 {
+					continue
+				}
+				if k[b]>>l&1 != 0 {
+					a[l] += 1 / tt
+				} else {
+					a[l] += tt
+				}
+			}
+		}
+		mean := 0.0
+		for l := range a {
+			perLane[l] = append(perLane[l], a[l])
+			mean += a[l] / Lanes
+		}
+		avg = append(avg, mean)
+	})
+	if err != nil {
+		t.Fatal(err)
+	}
+	varOf := func(x []float64) float64 {
+		g := analysis.Gamma([][]float64{x}, analysis.DefaultS)
+		return g.Err * g.Err
+	}
+	mean := 0.0
+	for _, x := range perLane {
+		mean += varOf(x) / Lanes
+	}
+	ratio := varOf(avg) / (mean / Lanes)
+	t.Logf("var(lane average) / (mean per-lane var / 64) = %.3f", ratio)
+	if ratio > 1.5 || ratio < 0.67 {
+		t.Errorf("lane average variance ratio %.3f: lanes are not independent", ratio)
+	}
+}

@@ -91,6 +91,13 @@ func thresholds64(c float64, qmax int) []uint64 {
 	return thr
 }
 
+// Decide is decide for other packages' lane chains (see there).
+func Decide(und uint64, masks, thr []uint64, r *rng.Rand) uint64 { return decide(und, masks, thr, r) }
+
+// Threshold converts an acceptance probability p ≤ 1 to the uint64
+// threshold u with P(x < u) = p for a uniform 64-bit x.
+func Threshold(p float64) uint64 { return threshold(p) }
+
 // decide returns the lanes of und (undecided lanes; masks[j] holds those
 // whose acceptance probability has the uint64 threshold thr[j], the masks
 // disjoint) that accept: each lane compares its own uniform 64-bit number,
