@@ -185,17 +185,8 @@ func (c Chain) runLanes(hook func(k, odd []uint64)) ([]float64, error) {
 			s := int32(r.Uniform(uint64(lt.N)))
 			dir := int(r.Uniform(uint64(z)))
 			ln := 1 + int(r.Uniform(uint64(maxLen)))
-			path = path[:0]
-			e := s
-			for q := 0; q < ln; q++ {
-				nx := lt.Nbr[int(e)*z+dir]
-				if dir%2 == 0 {
-					path = append(path, e*int32(lt.D)+int32(dir/2))
-				} else {
-					path = append(path, nx*int32(lt.D)+int32(dir/2))
-				}
-				e = nx
-			}
+			var e int32
+			path, e = lt.segment(s, dir, ln, path[:0])
 			if s == e {
 				continue
 			}

@@ -92,6 +92,24 @@ func (lt *Lattice) segments() int {
 	return (lt.N + 3) / 4
 }
 
+// segment appends to path the bonds of the straight path of ln bonds from
+// site s in direction dir (axis dir/2, sign dir%2) and returns it with its
+// end site.
+func (lt *Lattice) segment(s int32, dir, ln int, path []int32) ([]int32, int32) {
+	z := 2 * lt.D
+	e := s
+	for q := 0; q < ln; q++ {
+		nx := lt.Nbr[int(e)*z+dir]
+		if dir%2 == 0 {
+			path = append(path, e*int32(lt.D)+int32(dir/2))
+		} else {
+			path = append(path, nx*int32(lt.D)+int32(dir/2))
+		}
+		e = nx
+	}
+	return path, e
+}
+
 // Proposals returns the number of proposals in one sweep (see Chain).
 func (lt *Lattice) Proposals() int {
 	return len(lt.Ends) + len(lt.Plaq) + len(lt.Lines) + lt.N/2 + lt.segments()
@@ -320,17 +338,8 @@ func (c Chain) Run() ([]float64, error) {
 			s := int32(r.Intn(lt.N))
 			dir := r.Intn(z) // axis dir/2, sign dir%2
 			ln := 1 + r.Intn(maxLen)
-			path = path[:0]
-			e := s
-			for q := 0; q < ln; q++ {
-				nx := lt.Nbr[int(e)*z+dir]
-				if dir%2 == 0 {
-					path = append(path, e*int32(lt.D)+int32(dir/2))
-				} else {
-					path = append(path, nx*int32(lt.D)+int32(dir/2))
-				}
-				e = nx
-			}
+			var e int32
+			path, e = lt.segment(s, dir, ln, path[:0])
 			flipPath(path, s, e)
 		}
 	}

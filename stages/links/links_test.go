@@ -14,11 +14,20 @@ import (
 // ln[D(n+2)/D(n)] = ln⟨A⟩_n − ln⟨B⟩_{n+2} with its Γ-method error.
 func sectorRatios(t *testing.T, lt *Lattice, beta float64, sweeps int, seed uint64, dropWinding []int) (lnr, errs []float64) {
 	t.Helper()
+	return ratiosOf(t, lt, sweeps, func(n int) ([]float64, error) {
+		return Chain{Lat: lt, Beta: beta, Monomers: n, Therm: 500, Sweeps: sweeps, Seed: seed + uint64(n), DropWinding: dropWinding}.Run()
+	})
+}
+
+// ratiosOf runs one chain per sector n (run returns its rows A, B) and
+// returns ln[D(n+2)/D(n)] = ln⟨A⟩_n − ln⟨B⟩_{n+2} with its Γ-method error.
+func ratiosOf(t *testing.T, lt *Lattice, sweeps int, run func(n int) ([]float64, error)) (lnr, errs []float64) {
+	t.Helper()
 	top := lt.N - lt.N%2
 	A := map[int]analysis.Result{}
 	B := map[int]analysis.Result{}
 	for n := 0; n <= top; n += 2 {
-		data, err := Chain{Lat: lt, Beta: beta, Monomers: n, Therm: 500, Sweeps: sweeps, Seed: seed + uint64(n), DropWinding: dropWinding}.Run()
+		data, err := run(n)
 		if err != nil {
 			t.Fatal(err)
 		}
@@ -238,27 +247,9 @@ func BenchmarkChain(b *testing.B) {
 // per sweep).
 func laneRatios(t *testing.T, lt *Lattice, beta float64, sweeps int, seed uint64) (lnr, errs []float64) {
 	t.Helper()
-	top := lt.N - lt.N%2
-	A := map[int]analysis.Result{}
-	B := map[int]analysis.Result{}
-	for n := 0; n <= top; n += 2 {
-		data, err := Chain{Lat: lt, Beta: beta, Monomers: n, Therm: 200, Sweeps: sweeps, Seed: seed + uint64(n)}.RunLanes()
-		if err != nil {
-			t.Fatal(err)
-		}
-		a, b := make([]float64, sweeps), make([]float64, sweeps)
-		for s := 0; s < sweeps; s++ {
-			a[s], b[s] = data[2*s], data[2*s+1]
-		}
-		A[n] = analysis.Gamma([][]float64{a}, analysis.DefaultS)
-		B[n] = analysis.Gamma([][]float64{b}, analysis.DefaultS)
-	}
-	for n := 0; n+2 <= top; n += 2 {
-		a, b := A[n], B[n+2]
-		lnr = append(lnr, math.Log(a.Mean)-math.Log(b.Mean))
-		errs = append(errs, math.Hypot(a.Err/a.Mean, b.Err/b.Mean))
-	}
-	return lnr, errs
+	return ratiosOf(t, lt, sweeps, func(n int) ([]float64, error) {
+		return Chain{Lat: lt, Beta: beta, Monomers: n, Therm: 200, Sweeps: sweeps, Seed: seed + uint64(n)}.RunLanes()
+	})
 }
 
 // The 64-lane link chain against the exact D (Krawtchouk transform of
