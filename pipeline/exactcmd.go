@@ -12,7 +12,7 @@ import (
 	"strata/stages"
 )
 
-const exactUsage = `Usage: strata exact --dimension D --size L --beta B [--theta-min X] [--theta-max X] [--theta-points N] [--cache DIR]
+const exactUsage = `Usage: strata exact --dimension D --size L --beta B [--theta-min X] [--theta-max X] [--theta-points N] [--cache DIR] [--sectors monomer]
 
 Prints exact references for the periodic L^d lattice as CSV on stdout
 (theta,sign_exact,im_m_exact; sign = Z(β,iθ)/Z(β,0), im_m = Im<M>/N), after
@@ -23,6 +23,12 @@ Lee–Yang edge. Available: d = 1 any L (closed forms); d = 2 with L ≤ 8
 about 40 s). Grid points whose exact value the inputs' precision does not
 support are NaN. The transfer-matrix result is kept in the cache (--cache,
 default $STRATA_CACHE; none when both are empty), shared with studies.
+
+With --sectors monomer it prints n,ln_D_exact instead: ln D(n) − ln D(0) of
+the link (monomer) representation, by the ring's link transfer matrix
+(rings of 3 … 4096 sites) or from exact integer counts by the Krawtchouk
+transform (d = 2 with L ≤ 8, d = 3 with L ≤ 3), never from a
+floating-point ρ.
 
 Flags:
 `
