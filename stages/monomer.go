@@ -37,9 +37,9 @@ func SumFor(sectors string, n int, grid []float64) transform.Sum {
 	return transform.NewTable(n, grid)
 }
 
-// monomerSample runs one shard of the link chain: insertion → 64 lanes at
+// monomerSample runs one shard of the 64-lane link chain: insertion →
 // fixed n, columns A, B averaged over the lanes per sweep; indicator → the
-// single two-sector chain {n−2, n}, column: the fraction of time in n.
+// two-sector chain {n−2, n}, column: the lanes' mean fraction of time in n.
 func monomerSample(p SampleParams) ([]byte, error) {
 	lt, err := links.NewLattice(p.D, p.L)
 	if err != nil {
@@ -52,7 +52,7 @@ func monomerSample(p SampleParams) ([]byte, error) {
 		data, err = c.RunLanes()
 	case ratio.Indicator:
 		c.TwoSector = true
-		data, err = c.Run()
+		data, err = c.RunLanes()
 	default:
 		return nil, fmt.Errorf("estimator %q has no monomer chain (use %s or %s)", p.Estimator, ratio.Insertion, ratio.Indicator)
 	}
@@ -60,15 +60,6 @@ func monomerSample(p SampleParams) ([]byte, error) {
 		return nil, err
 	}
 	return EncodeNpy(data, p.Sweeps, Columns(p.Estimator, p.D))
-}
-
-// monomerLanes is the number of lanes of a monomer chain: 64 for the
-// fixed-n chain (insertion), 1 for the two-sector chain (indicator).
-func monomerLanes(estimator string) int {
-	if estimator == ratio.Insertion {
-		return links.Lanes
-	}
-	return 1
 }
 
 // MonomerExactOut is the exact monomer density of one branch.

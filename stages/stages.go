@@ -21,6 +21,7 @@ import (
 	"gonum.org/v1/gonum/mat"
 
 	"strata/stages/lattice"
+	"strata/stages/links"
 	"strata/stages/ratio"
 	"strata/stages/sampler"
 )
@@ -46,7 +47,7 @@ const (
 const (
 	sampleVersion = 1
 	// monomerSampleVersion versions the link chain (its moves and sweep).
-	monomerSampleVersion = 2 // 2: 64 lanes for insertion
+	monomerSampleVersion = 3 // 2: 64 lanes for insertion; 3: and for indicator
 	ratiosVersion        = 2
 	stitchVersion        = 2
 	exactVersion         = 3
@@ -137,7 +138,7 @@ func Sample(p SampleParams) Task {
 			Stage: SampleStage, Version: monomerSampleVersion,
 			Params: []Param{
 				{"beta", F(p.Beta)}, {"chunk", I(p.Chunk)}, {"dimension", I(p.D)},
-				{"estimator", p.Estimator}, {"lanes", I(monomerLanes(p.Estimator))}, {"monomers", I(p.M)}, {"sectors", Monomer}, {"seed", strconv.FormatUint(p.Seed, 10)},
+				{"estimator", p.Estimator}, {"lanes", I(links.Lanes)}, {"monomers", I(p.M)}, {"sectors", Monomer}, {"seed", strconv.FormatUint(p.Seed, 10)},
 				{"size", I(p.L)}, {"sweeps", I(p.Sweeps)}, {"thermalization", I(p.Therm)},
 			},
 			Run: func([][]byte) ([]byte, error) { return monomerSample(p) },

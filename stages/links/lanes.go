@@ -33,7 +33,7 @@ func planes(words []uint64, out []uint64) []uint64 {
 
 // equal returns the lanes whose count (planes) equals v.
 func equal(pl []uint64, v int) uint64 {
-	if v >= 1<<len(pl) {
+	if v < 0 || v >= 1<<len(pl) {
 		return 0
 	}
 	m := ^uint64(0)
@@ -56,7 +56,11 @@ func equal(pl []uint64, v int) uint64 {
 // lines, bond pairs, segments), each proposed once for all lanes and
 // decided per lane: a lane flips when the move keeps its n and it accepts
 // with min(1, t^{Δ|k|}) by its own uniform number (sampler.Decide, exact
-// against the threshold). TwoSector is not supported here.
+// against the threshold). With TwoSector the lanes run on {n−2, n} (each
+// with its own "in the upper sector" bit; moves that add or remove a pair
+// of monomers are kept when they stay in the pair) and RunLanes returns
+// per sweep the lane average of the fraction of bond proposals after
+// which the lane was in n.
 func (c Chain) RunLanes() ([]float64, error) { return c.runLanes(nil) }
 
 // runLanes is RunLanes with an optional hook called with the bond and
@@ -66,8 +70,8 @@ func (c Chain) runLanes(hook func(k, odd []uint64)) ([]float64, error) {
 	if c.Monomers%2 != 0 || c.Monomers < 0 || c.Monomers > lt.N {
 		return nil, fmt.Errorf("links: %d monomers on %d sites (need even, 0 … N)", c.Monomers, lt.N)
 	}
-	if c.TwoSector {
-		return nil, fmt.Errorf("links: the lane chain runs at fixed n only")
+	if c.TwoSector && c.Monomers < 2 {
+		return nil, fmt.Errorf("links: a two-sector chain needs an upper sector n ≥ 2, got %d", c.Monomers)
 	}
 	t := math.Tanh(c.Beta)
 	if !(t > 0) {
@@ -77,9 +81,38 @@ func (c Chain) runLanes(hook func(k, odd []uint64)) ([]float64, error) {
 	nb := len(lt.Ends)
 	k := make([]uint64, nb)
 	odd := make([]uint64, lt.N)
-	if err := initialLanes(lt, k, odd, c.Monomers, &r); err != nil {
+	start := c.Monomers
+	if c.TwoSector {
+		start -= 2 // every lane starts in the lower sector
+	}
+	if err := initialLanes(lt, k, odd, start, &r); err != nil {
 		return nil, err
 	}
+	// upper: the lanes in sector n (two-sector chains; fixed n: all)
+	upper := ^uint64(0)
+	if c.TwoSector {
+		upper = 0
+	}
+	// keeps returns the lanes where a move changing the parities of the
+	// sites in toggled keeps the chain in its sectors: fixed n, or in a
+	// two-sector chain n → n ± 2 from the lower (upper) sector.
+	var oddWords []uint64
+	var pl2 []uint64
+	keeps := func(toggled []int32) (stay, up, down uint64) {
+		oddWords = oddWords[:0]
+		for _, x := range toggled {
+			oddWords = append(oddWords, odd[x])
+		}
+		pl2 = planes(oddWords, pl2)
+		h := len(toggled) / 2
+		stay = equal(pl2, h) // as many odd as even toggled sites: n kept
+		if c.TwoSector {
+			up = equal(pl2, h-1) &^ upper  // one more even: n + 2
+			down = equal(pl2, h+1) & upper // one more odd: n − 2
+		}
+		return stay, up, down
+	}
+	inUpper := 0 // (bond proposal, lane) pairs ending in the upper sector, this sweep
 	// thr[d] = threshold of t^d, d = Δ|k| > 0
 	maxD := max(lt.L, 4, 16)
 	thr := make([]uint64, maxD+1)
@@ -125,19 +158,28 @@ func (c Chain) runLanes(hook func(k, odd []uint64)) ([]float64, error) {
 	segments, maxLen := lt.segments(), min(lt.L-1, 16)
 	pair, one := make([]int32, 2), make([]int32, 1)
 	var toggled []int32
-	var oddWords []uint64
+	ends2 := make([]int32, 2)
+	// move flips path (whose parities change at the sites in ends) in the
+	// lanes where that keeps the sectors and Metropolis accepts
+	move := func(path, ends []int32) {
+		stay, up, down := keeps(ends)
+		acc := flipPath(path, stay|up|down)
+		for _, x := range ends {
+			odd[x] ^= acc
+		}
+		upper ^= acc & (up | down)
+	}
 	sweep := func() {
+		inUpper = 0
 		for p := 0; p < nb; p++ {
 			b := int32(r.Uniform(uint64(nb)))
 			e := lt.Ends[b]
-			if e[0] == e[1] {
-				continue
+			if e[0] != e[1] {
+				one[0] = b
+				ends2[0], ends2[1] = e[0], e[1]
+				move(one, ends2)
 			}
-			allowed := odd[e[0]] ^ odd[e[1]] // exactly one odd end: a monomer moves
-			one[0] = b
-			acc := flipPath(one, allowed)
-			odd[e[0]] ^= acc
-			odd[e[1]] ^= acc
+			inUpper += bits.OnesCount64(upper)
 		}
 		for p := 0; p < len(lt.Plaq); p++ {
 			flipPath(lt.Plaq[r.Uniform(uint64(len(lt.Plaq)))][:], ^uint64(0))
@@ -169,17 +211,8 @@ func (c Chain) runLanes(hook func(k, odd []uint64)) ([]float64, error) {
 					toggled = append(toggled, x)
 				}
 			}
-			oddWords = oddWords[:0]
-			for _, x := range toggled {
-				oddWords = append(oddWords, odd[x])
-			}
-			pl = planes(oddWords, pl)
-			allowed := equal(pl, len(toggled)/2)
 			pair[0], pair[1] = b1, b2
-			acc := flipPath(pair, allowed)
-			for _, x := range toggled {
-				odd[x] ^= acc
-			}
+			move(pair, toggled)
 		}
 		for p := 0; p < segments; p++ {
 			s := int32(r.Uniform(uint64(lt.N)))
@@ -190,13 +223,20 @@ func (c Chain) runLanes(hook func(k, odd []uint64)) ([]float64, error) {
 			if s == e {
 				continue
 			}
-			acc := flipPath(path, odd[s]^odd[e])
-			odd[s] ^= acc
-			odd[e] ^= acc
+			ends2[0], ends2[1] = s, e
+			move(path, ends2)
 		}
 	}
 	for s := 0; s < c.Therm; s++ {
 		sweep()
+	}
+	if c.TwoSector {
+		out := make([]float64, 0, c.Sweeps)
+		for s := 0; s < c.Sweeps; s++ {
+			sweep()
+			out = append(out, float64(inUpper)/float64(nb*Lanes))
+		}
+		return out, nil
 	}
 	out := make([]float64, 0, 2*c.Sweeps)
 	for s := 0; s < c.Sweeps; s++ {

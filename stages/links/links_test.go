@@ -371,3 +371,41 @@ func TestLinkLanesIndependent(t *testing.T) {
 		t.Errorf("lane average variance ratio %.3f: lanes are not independent", ratio)
 	}
 }
+
+// The 64-lane two-sector chain against the exact D, as TestTwoSectorChain
+// (Krawtchouk transform of exact counts on 3×3, 4×4 and an 8-ring; Γ-method
+// errors, U. Wolff, Comput. Phys. Commun. 156, 143 (2004)).
+func TestTwoSectorLanes(t *testing.T) {
+	c33, _ := exact.Enumerate(mustLat(t, 2, 3))
+	c44, _ := exact.TorusCounts(4)
+	for _, c := range []struct {
+		name string
+		d, l int
+		beta float64
+		rho  exact.RhoFunc
+	}{{"3x3", 2, 3, 0.3, c33.Rho(0.3)}, {"ring8", 1, 8, 0.7, exact.RingRho(8, 0.7)}, {"4x4", 2, 4, 0.4, c44.Rho(0.4)}} {
+		lt, _ := NewLattice(c.d, c.l)
+		want := exactRatios(t, c.rho, lt.N)
+		chi2 := 0.0
+		for n := 2; n <= lt.N; n += 2 {
+			data, err := Chain{Lat: lt, Beta: c.beta, Monomers: n, Therm: 200, Sweeps: 2000, Seed: uint64(n), TwoSector: true}.RunLanes()
+			if err != nil {
+				t.Fatal(err)
+			}
+			g := analysis.Gamma([][]float64{data}, analysis.DefaultS)
+			x := g.Mean
+			got := math.Log(x / (1 - x))
+			e := g.Err * (1/x + 1/(1-x))
+			p := (got - want[n/2-1]) / e
+			chi2 += p * p
+			if math.Abs(p) > 4 {
+				t.Errorf("%s n=%d: ln D(n)/D(n−2) = %.5f ± %.5f, exact %.5f", c.name, n, got, e, want[n/2-1])
+			}
+		}
+		dof := float64(lt.N / 2)
+		if chi2 > dof+2.33*math.Sqrt(2*dof)+2 {
+			t.Errorf("%s: χ² = %.1f for %v ratios", c.name, chi2, dof)
+		}
+		t.Logf("%s: χ² = %.1f / %v", c.name, chi2, dof)
+	}
+}
