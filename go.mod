@@ -6,6 +6,7 @@ require (
 	codeberg.org/sbinet/npyio v0.14.0
 	github.com/BurntSushi/toml v1.6.0
 	github.com/zeebo/blake3 v0.2.4
+	golang.org/x/sys v0.40.0
 	gonum.org/v1/gonum v0.17.0
 	gonum.org/v1/plot v0.17.0
 )

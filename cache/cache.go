@@ -4,9 +4,10 @@
 // computation (the caller hashes a complete text record of everything that
 // influences the output); the store maps it to an output, which is stored
 // once under the blake3 hash of its bytes. Entries are written atomically
-// (temp file in the same folder, fsync, rename, fsync of the folder) and
-// verified on every read: a damaged object is reported as ErrCorrupt and is
-// never returned, so callers treat it as a miss and recompute.
+// (temp file in the same folder, rename; no per-object fsync — Sync makes a
+// batch durable at once) and verified on every read: a damaged or missing
+// object is reported as ErrCorrupt and is never returned, so callers treat
+// it as a miss and recompute.
 //
 // Layout: DIR/xx/<hex action>-a holds one line "v1 <hex output> <size>";
 // DIR/xx/<hex output>-d holds the output bytes; xx is the first key byte.

@@ -113,9 +113,19 @@ func (r *Runner) Run(p *Plan) error {
 		if !r.runGroup(group, jobs) {
 			return ErrInterrupted
 		}
+		computed := false
 		for _, n := range group {
 			if n.Err != nil {
 				failed = append(failed, n)
+			}
+			computed = computed || n.Status == "computed"
+		}
+		// one fsync per batch: what this group stored is durable before
+		// the next group builds on it (objects are written without a
+		// per-object fsync and verified on every read)
+		if computed {
+			if err := r.Cache.Sync(); err != nil {
+				r.logf("warning: %v", err)
 			}
 		}
 	}
