@@ -67,15 +67,9 @@ func (c Chain) RunLanes() ([]float64, error) { return c.runLanes(nil) }
 // parity words after every measured sweep (tests).
 func (c Chain) runLanes(hook func(k, odd []uint64)) ([]float64, error) {
 	lt := c.Lat
-	if c.Monomers%2 != 0 || c.Monomers < 0 || c.Monomers > lt.N {
-		return nil, fmt.Errorf("links: %d monomers on %d sites (need even, 0 … N)", c.Monomers, lt.N)
-	}
-	if c.TwoSector && c.Monomers < 2 {
-		return nil, fmt.Errorf("links: a two-sector chain needs an upper sector n ≥ 2, got %d", c.Monomers)
-	}
-	t := math.Tanh(c.Beta)
-	if !(t > 0) {
-		return nil, fmt.Errorf("links: β = %v gives t = tanh β = %v (need β > 0)", c.Beta, t)
+	t, err := c.check()
+	if err != nil {
+		return nil, err
 	}
 	r := rng.NewRand(c.Seed)
 	nb := len(lt.Ends)

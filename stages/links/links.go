@@ -152,20 +152,29 @@ type Chain struct {
 	TwoSector bool
 }
 
+// check validates the chain and returns t = tanh β.
+func (c Chain) check() (float64, error) {
+	if c.Monomers%2 != 0 || c.Monomers < 0 || c.Monomers > c.Lat.N {
+		return 0, fmt.Errorf("links: %d monomers on %d sites (need even, 0 … N)", c.Monomers, c.Lat.N)
+	}
+	if c.TwoSector && c.Monomers < 2 {
+		return 0, fmt.Errorf("links: a two-sector chain needs an upper sector n ≥ 2, got %d", c.Monomers)
+	}
+	t := math.Tanh(c.Beta)
+	if !(t > 0) {
+		return 0, fmt.Errorf("links: β = %v gives t = tanh β = %v (need β > 0)", c.Beta, t)
+	}
+	return t, nil
+}
+
 // Run returns, per measured sweep, A = Σ_{even-even bonds} t^{1−2k_b} and
 // B = #{odd-odd bonds}, row-major (sweeps × 2); with TwoSector, the
 // fraction of time in the upper sector (sweeps × 1).
 func (c Chain) Run() ([]float64, error) {
 	lt := c.Lat
-	if c.Monomers%2 != 0 || c.Monomers < 0 || c.Monomers > lt.N {
-		return nil, fmt.Errorf("links: %d monomers on %d sites (need even, 0 … N)", c.Monomers, lt.N)
-	}
-	if c.TwoSector && c.Monomers < 2 {
-		return nil, fmt.Errorf("links: a two-sector chain needs an upper sector n ≥ 2, got %d", c.Monomers)
-	}
-	t := math.Tanh(c.Beta)
-	if !(t > 0) {
-		return nil, fmt.Errorf("links: β = %v gives t = tanh β = %v (need β > 0)", c.Beta, t)
+	t, err := c.check()
+	if err != nil {
+		return nil, err
 	}
 	r := rng.NewRand(c.Seed)
 	nb := len(lt.Ends)

@@ -96,33 +96,47 @@ func TestMonomerRatiosAgainstExact(t *testing.T) {
 			t.Fatal(err)
 		}
 		got, errs := sectorRatios(t, lt, c.beta, c.sweeps, 11, nil)
-		var want []float64
-		if c.rho != nil {
-			want = exactRatios(t, c.rho, lt.N)
-		} else {
-			lnD, err := exact.RingMonomerLnD(lt.N, c.beta)
-			if err != nil {
-				t.Fatal(err)
-			}
-			for m := 1; m < len(lnD); m++ {
-				want = append(want, lnD[m]-lnD[m-1])
-			}
-		}
-		chi2 := 0.0
-		for i := range got {
-			p := (got[i] - want[i]) / errs[i]
-			chi2 += p * p
-			if math.Abs(p) > 4 {
-				t.Errorf("%s n=%d→%d: ln ratio %.5f ± %.5f, exact %.5f (pull %.1f)", c.name, 2*i, 2*i+2, got[i], errs[i], want[i], p)
-			}
-		}
-		dof := float64(len(got))
-		// 99% point of χ² with k dof ≈ k + 2.33√(2k) + 2 (Wilson–Hilferty, rounded up; common practice)
-		if chi2 > dof+2.33*math.Sqrt(2*dof)+2 {
-			t.Errorf("%s: χ² = %.1f for %v ratios", c.name, chi2, dof)
-		}
-		t.Logf("%s: χ² = %.1f / %v", c.name, chi2, dof)
+		checkRatios(t, c.name, got, errs, wantRatios(t, lt, c.beta, c.rho))
 	}
+}
+
+// wantRatios returns the exact ln[D(n+2)/D(n)]: from rho by the
+// Krawtchouk transform, or for rho == nil from the ring's link transfer
+// matrix.
+func wantRatios(t *testing.T, lt *Lattice, beta float64, rho exact.RhoFunc) []float64 {
+	t.Helper()
+	if rho != nil {
+		return exactRatios(t, rho, lt.N)
+	}
+	lnD, err := exact.RingMonomerLnD(lt.N, beta)
+	if err != nil {
+		t.Fatal(err)
+	}
+	var want []float64
+	for m := 1; m < len(lnD); m++ {
+		want = append(want, lnD[m]-lnD[m-1])
+	}
+	return want
+}
+
+// checkRatios fails on a pull beyond 4σ or a χ² above the 99% point of χ²
+// with as many degrees of freedom as ratios (≈ k + 2.33√(2k) + 2,
+// Wilson–Hilferty, rounded up; common practice).
+func checkRatios(t *testing.T, name string, got, errs, want []float64) {
+	t.Helper()
+	chi2 := 0.0
+	for i := range got {
+		p := (got[i] - want[i]) / errs[i]
+		chi2 += p * p
+		if math.Abs(p) > 4 {
+			t.Errorf("%s n=%d→%d: ln ratio %.5f ± %.5f, exact %.5f (pull %.1f)", name, 2*i, 2*i+2, got[i], errs[i], want[i], p)
+		}
+	}
+	dof := float64(len(got))
+	if chi2 > dof+2.33*math.Sqrt(2*dof)+2 {
+		t.Errorf("%s: χ² = %.1f for %v ratios", name, chi2, dof)
+	}
+	t.Logf("%s: χ² = %.1f / %v", name, chi2, dof)
 }
 
 // Without the winding-line moves the chain cannot change the winding
@@ -275,28 +289,7 @@ func TestLaneChainAgainstExact(t *testing.T) {
 	for _, c := range cases {
 		lt, _ := NewLattice(c.d, c.l)
 		got, errs := laneRatios(t, lt, c.beta, 2000, 23)
-		var want []float64
-		if c.rho != nil {
-			want = exactRatios(t, c.rho, lt.N)
-		} else {
-			lnD, _ := exact.RingMonomerLnD(lt.N, c.beta)
-			for m := 1; m < len(lnD); m++ {
-				want = append(want, lnD[m]-lnD[m-1])
-			}
-		}
-		chi2 := 0.0
-		for i := range got {
-			p := (got[i] - want[i]) / errs[i]
-			chi2 += p * p
-			if math.Abs(p) > 4 {
-				t.Errorf("%s n=%d→%d: ln ratio %.5f ± %.5f, exact %.5f (pull %.1f)", c.name, 2*i, 2*i+2, got[i], errs[i], want[i], p)
-			}
-		}
-		dof := float64(len(got))
-		if chi2 > dof+2.33*math.Sqrt(2*dof)+2 {
-			t.Errorf("%s: χ² = %.1f for %v ratios", c.name, chi2, dof)
-		}
-		t.Logf("%s: χ² = %.1f / %v", c.name, chi2, dof)
+		checkRatios(t, c.name, got, errs, wantRatios(t, lt, c.beta, c.rho))
 	}
 }
 
