@@ -62,15 +62,10 @@ func (in *Input) MonomerInsertion() (*Result, error) {
 		}
 		b, err := in.logBlock(m, names, series)
 		if err != nil {
-			errs = append(errs, err)
-			b = Block{Sector: m, Names: names, Values: make([]float64, len(names)), Tau: make([]float64, len(names))}
-			b.Cov = make([][]float64, len(names))
-			for i := range b.Cov {
-				b.Cov[i] = make([]float64, len(names))
-			}
-		} else {
-			in.warnTau(r, b, ch)
+			errs = append(errs, err) // every sector's reason, then one error
+			continue
 		}
+		in.warnTau(r, b, ch)
 		r.Blocks = append(r.Blocks, b)
 	}
 	if len(errs) > 0 {
