@@ -188,32 +188,32 @@ func TestTwoSectorChain(t *testing.T) {
 		rho  exact.RhoFunc
 	}{{"3x3", 2, 3, 0.3, c33.Rho(0.3)}, {"ring8", 1, 8, 0.7, exact.RingRho(8, 0.7)}} {
 		lt, _ := NewLattice(c.d, c.l)
-		want := exactRatios(t, c.rho, lt.N)
-		chi2 := 0.0
-		for n := 2; n <= lt.N; n += 2 {
-			data, err := Chain{Lat: lt, Beta: c.beta, Monomers: n, Therm: 500, Sweeps: 20000, Seed: uint64(n), TwoSector: true}.Run()
-			if err != nil {
-				t.Fatal(err)
-			}
-			g := analysis.Gamma([][]float64{data}, analysis.DefaultS)
-			x := g.Mean
-			got := math.Log(x / (1 - x))
-			e := g.Err * (1/x + 1/(1-x))
-			p := (got - want[n/2-1]) / e
-			chi2 += p * p
-			if math.Abs(p) > 4 {
-				t.Errorf("%s n=%d: ln D(n)/D(n−2) = %.5f ± %.5f, exact %.5f", c.name, n, got, e, want[n/2-1])
-			}
-		}
-		dof := float64(lt.N / 2)
-		if chi2 > dof+2.33*math.Sqrt(2*dof)+2 {
-			t.Errorf("%s: χ² = %.1f for %v ratios", c.name, chi2, dof)
-		}
-		t.Logf("%s: χ² = %.1f / %v", c.name, chi2, dof)
+		got, errs := twoSectorRatios(t, lt, func(n int) ([]float64, error) {
+			return Chain{Lat: lt, Beta: c.beta, Monomers: n, Therm: 500, Sweeps: 20000, Seed: uint64(n), TwoSector: true}.Run()
+		})
+		checkRatios(t, c.name, got, errs, exactRatios(t, c.rho, lt.N))
 	}
 	if _, err := (Chain{Lat: mustLatLinks(t, 1, 8), Beta: 0.3, Monomers: 0, Sweeps: 10, TwoSector: true}).Run(); err == nil {
 		t.Error("a two-sector chain below n = 2 was accepted")
 	}
+}
+
+// twoSectorRatios runs one two-sector chain per upper sector n (run
+// returns the per-sweep fraction of time in n) and returns ln[D(n)/D(n−2)]
+// = ln x̄ − ln(1−x̄) with the Γ-method error of the projected series.
+func twoSectorRatios(t *testing.T, lt *Lattice, run func(n int) ([]float64, error)) (lnr, errs []float64) {
+	t.Helper()
+	for n := 2; n <= lt.N; n += 2 {
+		data, err := run(n)
+		if err != nil {
+			t.Fatal(err)
+		}
+		g := analysis.Gamma([][]float64{data}, analysis.DefaultS)
+		x := g.Mean
+		lnr = append(lnr, math.Log(x/(1-x)))
+		errs = append(errs, g.Err*(1/x+1/(1-x)))
+	}
+	return lnr, errs
 }
 
 func mustLatLinks(t *testing.T, d, l int) *Lattice {
@@ -378,27 +378,9 @@ func TestTwoSectorLanes(t *testing.T) {
 		rho  exact.RhoFunc
 	}{{"3x3", 2, 3, 0.3, c33.Rho(0.3)}, {"ring8", 1, 8, 0.7, exact.RingRho(8, 0.7)}, {"4x4", 2, 4, 0.4, c44.Rho(0.4)}} {
 		lt, _ := NewLattice(c.d, c.l)
-		want := exactRatios(t, c.rho, lt.N)
-		chi2 := 0.0
-		for n := 2; n <= lt.N; n += 2 {
-			data, err := Chain{Lat: lt, Beta: c.beta, Monomers: n, Therm: 200, Sweeps: 2000, Seed: uint64(n), TwoSector: true}.RunLanes()
-			if err != nil {
-				t.Fatal(err)
-			}
-			g := analysis.Gamma([][]float64{data}, analysis.DefaultS)
-			x := g.Mean
-			got := math.Log(x / (1 - x))
-			e := g.Err * (1/x + 1/(1-x))
-			p := (got - want[n/2-1]) / e
-			chi2 += p * p
-			if math.Abs(p) > 4 {
-				t.Errorf("%s n=%d: ln D(n)/D(n−2) = %.5f ± %.5f, exact %.5f", c.name, n, got, e, want[n/2-1])
-			}
-		}
-		dof := float64(lt.N / 2)
-		if chi2 > dof+2.33*math.Sqrt(2*dof)+2 {
-			t.Errorf("%s: χ² = %.1f for %v ratios", c.name, chi2, dof)
-		}
-		t.Logf("%s: χ² = %.1f / %v", c.name, chi2, dof)
+		got, errs := twoSectorRatios(t, lt, func(n int) ([]float64, error) {
+			return Chain{Lat: lt, Beta: c.beta, Monomers: n, Therm: 200, Sweeps: 2000, Seed: uint64(n), TwoSector: true}.RunLanes()
+		})
+		checkRatios(t, c.name, got, errs, exactRatios(t, c.rho, lt.N))
 	}
 }

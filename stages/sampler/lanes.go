@@ -28,24 +28,6 @@ type laneState struct {
 	s   []uint64
 }
 
-// upNeighbours sets one[k] (k = 0…z) to the lanes in which exactly k of
-// site i's neighbours are up, by carrying one-hot counts through the z
-// neighbour words.
-func (ls *laneState) upNeighbours(i int, one *[13]uint64) {
-	z := ls.lat.Z
-	one[0] = ^uint64(0)
-	for k := 1; k <= z; k++ {
-		one[k] = 0
-	}
-	for j, nb := range ls.lat.Nbr[i*z : i*z+z] {
-		x := ls.s[nb]
-		for k := j + 1; k > 0; k-- {
-			one[k] = one[k]&^x | one[k-1]&x
-		}
-		one[0] &^= x
-	}
-}
-
 // upCount returns the lanes' up-neighbour counts of site i as bit planes:
 // lane ℓ has k = bit ℓ of c0 + 2·(bit ℓ of c1) + 4·(bit ℓ of c2) up
 // neighbours (a ripple-carry add of the z neighbour words; z ≤ 6 fits
@@ -261,22 +243,7 @@ func (ls *laneState) histogram(acc *[14]uint64) {
 	for i, si := range ls.s {
 		c0, c1, c2 := ls.upCount(i)
 		for k := 0; k <= z; k++ {
-			m := ^uint64(0)
-			if k&1 != 0 {
-				m &= c0
-			} else {
-				m &^= c0
-			}
-			if k&2 != 0 {
-				m &= c1
-			} else {
-				m &^= c1
-			}
-			if k&4 != 0 {
-				m &= c2
-			} else {
-				m &^= c2
-			}
+			m := oneHot(k, c0, c1, c2)
 			acc[k] += uint64(bits.OnesCount64(si & m))
 			acc[7+k] += uint64(bits.OnesCount64(^si & m))
 		}

@@ -145,14 +145,13 @@ func TestLanesIndependent(t *testing.T) {
 	perLane := make([][]float64, Lanes)
 	var avg []float64
 	ls := &laneState{lat: lat}
-	var one [13]uint64
 	_, err := sectorLanes(Chain{Lat: lat, Beta: beta, M: m, Therm: 200, Sweeps: sweeps, Seed: 3}, 16, func(s []uint64) {
 		ls.s = s
 		var a [Lanes]float64
 		for i, si := range s {
-			ls.upNeighbours(i, &one)
+			c0, c1, c2 := ls.upCount(i)
 			for k := 0; k <= z; k++ {
-				x := si & one[k]
+				x := si & oneHot(k, c0, c1, c2)
 				for x != 0 {
 					a[bits.TrailingZeros64(x)] += wts[k]
 					x &= x - 1
